@@ -1,0 +1,111 @@
+/// @file
+/// Online centering (deviation variables) under sample weights and exponential forgetting.
+#pragma once
+
+#include <cmath>
+#include <cstdint>
+
+#include "rowfold/detail/dims.hpp"
+#include "rowfold/options.hpp"
+
+namespace rowfold {
+
+/// Running weighted means of x and y, the weight sums, and the centered sum of squares of y.
+///
+/// Update for a sample (x, y) with weight w under forgetting lambda (West 1979, CACM 22(9);
+/// exponentially weighted form derived in NUMERICS §4.1):
+/// ```
+///   W' = lambda W + w,   d = x - xbar,   e = y - ybar,
+///   xbar' = xbar + (w/W') d,   ybar' = ybar + (w/W') e,
+///   M' = lambda M + c^2 [d; e][d; e]'   with   c = sqrt(w lambda W / W').
+/// ```
+/// Every estimator therefore folds the *scaled centered row* c [d, e] into its own state; the
+/// intercept never enters a solve and is recovered as b0 = ybar - xbar'b. With
+/// `Intercept::none` the means stay zero and c = sqrt(w) (uncentered fit through the origin).
+///
+/// Besides W it keeps the forgetting sums F = sum lambda^age and F2 = sum lambda^(2 age)
+/// (sample weights excluded), which give the effective sample size F^2/F2 used by the
+/// statistics under forgetting (Kish 1965; NUMERICS §7.2). With lambda = 1, F = F2 = n.
+template <typename Scalar, int K, int MaxK = K>
+class Centering {
+ public:
+  using Dims = detail::Dims<Scalar, K, MaxK>;
+  using Vector = typename Dims::Vector;
+  using Vector1 = typename Dims::Vector1;
+
+  Centering() { reset(); }
+  explicit Centering(Eigen::Index k) : m_xbar(k) { reset(); }
+
+  void reset() {
+    m_xbar.setZero();
+    m_ybar = Scalar(0);
+    m_weight = Scalar(0);
+    m_forget = Scalar(0);
+    m_forget2 = Scalar(0);
+    m_syy = Scalar(0);
+    m_count = 0;
+  }
+
+  /// Writes the scaled row c [x - xbar, y - ybar] (or sqrt(w) [x, y]) into `row` (size K+1)
+  /// without changing the state. Returns c.
+  template <typename XD>
+  Scalar scaledRow(const Eigen::MatrixBase<XD>& x, Scalar y, Scalar w, Scalar lambda, Intercept mode,
+                   Vector1& row) const {
+    const Eigen::Index k = m_xbar.size();
+    if (mode == Intercept::none) {
+      const Scalar c = std::sqrt(w);
+      row.head(k) = c * x;
+      row(k) = c * y;
+      return c;
+    }
+    const Scalar aged = lambda * m_weight;
+    const Scalar wNew = aged + w;
+    const Scalar c = std::sqrt(w * (aged / wNew));
+    row.head(k) = c * (x - m_xbar);
+    row(k) = c * (y - m_ybar);
+    return c;
+  }
+
+  /// Commits the sample to the means and sums (call after the estimator folded `row`).
+  template <typename XD>
+  void commit(const Eigen::MatrixBase<XD>& x, Scalar y, Scalar w, Scalar lambda, Intercept mode,
+              const Vector1& row) {
+    const Eigen::Index k = m_xbar.size();
+    const Scalar wNew = lambda * m_weight + w;
+    if (mode == Intercept::fit) {
+      const Scalar share = w / wNew;
+      m_xbar += share * (x - m_xbar);
+      m_ybar += share * (y - m_ybar);
+    }
+    m_syy = lambda * m_syy + row(k) * row(k);
+    m_weight = wNew;
+    m_forget = lambda * m_forget + Scalar(1);
+    m_forget2 = lambda * lambda * m_forget2 + Scalar(1);
+    ++m_count;
+  }
+
+  const Vector& xMean() const { return m_xbar; }
+  Scalar yMean() const { return m_ybar; }
+  /// W = sum of forgotten sample weights.
+  Scalar weightSum() const { return m_weight; }
+  /// Centered (or, without intercept, uncentered) weighted sum of squares of y.
+  Scalar yySum() const { return m_syy; }
+  /// F = sum lambda^age over accepted samples.
+  Scalar forgetSum() const { return m_forget; }
+  /// F2 = sum lambda^(2 age) over accepted samples.
+  Scalar forgetSum2() const { return m_forget2; }
+  /// Effective number of samples F^2/F2 (= count when lambda = 1).
+  Scalar effectiveCount() const { return m_forget2 > Scalar(0) ? m_forget * m_forget / m_forget2 : Scalar(0); }
+  std::uint64_t count() const { return m_count; }
+
+ private:
+  Vector m_xbar;
+  Scalar m_ybar;
+  Scalar m_weight;
+  Scalar m_forget;
+  Scalar m_forget2;
+  Scalar m_syy;
+  std::uint64_t m_count;
+};
+
+}  // namespace rowfold

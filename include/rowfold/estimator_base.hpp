@@ -1,0 +1,340 @@
+/// @file
+/// The interface every rowfold estimator shares, written once (CRTP).
+#pragma once
+
+#include <Eigen/Core>
+#include <cmath>
+#include <type_traits>
+
+#include "rowfold/centering.hpp"
+#include "rowfold/detail/analysis.hpp"
+#include "rowfold/detail/dims.hpp"
+#include "rowfold/detail/workspace.hpp"
+#include "rowfold/options.hpp"
+#include "rowfold/results.hpp"
+#include "rowfold/status.hpp"
+
+namespace rowfold {
+
+/// Shared interface of all estimators. The contract, in code:
+/// ```
+///   rowfold::GivensQr<double, 3> fit;              // K = 3 regressors, intercept fitted
+///   if (fit.add(x, y) != rowfold::Status::ok) {}   // rejected: state untouched
+///   auto sol = fit.solve();                        // b, b0, rank, flags
+///   auto rep = fit.summarize(0.95);                // SEs, intervals, R^2, F, conditioning
+///   auto pre = fit.predictionInterval(x0, 0.95);   // yhat with CI and PI
+/// ```
+///
+/// **Written once here:** input validation (a rejected sample leaves the state bit-identical),
+/// online centering, statistics, conditioning, prediction.
+///
+/// **Minimum each estimator implements** (`Derived`):
+/// - `void foldRow(const XD& x, Scalar y, Scalar w, const Vector1& row)`: age the state by
+///   lambda and fold the scaled centered row `row` = c [x - xbar, y - ybar] (raw x, y, w are
+///   given for estimators that keep raw data);
+/// - `std::uint64_t room() const`: how many more samples fit (capacity-bound estimators);
+/// - `void clearState()`;
+/// - `bool factorize(Workspace&) const`: fill R, z, rho, b, intercept, means, W, SST;
+/// - `static constexpr detail::ErrorModel errorModel`.
+/// Estimators may shadow `solveInto` with a cheaper path (back substitution, RLS theta).
+///
+/// Allocation: fixed K allocates nothing, ever. Eigen::Dynamic K allocates in the constructor
+/// only. No member function throws.
+template <typename Derived, typename Scalar_, int K_, int MaxK_>
+class EstimatorBase {
+ public:
+  using Scalar = Scalar_;
+  static constexpr int K = K_;
+  static constexpr int MaxK = MaxK_;
+  using Dims = detail::Dims<Scalar, K, MaxK>;
+  using Vector = typename Dims::Vector;
+  using Matrix = typename Dims::Matrix;
+  using Vector1 = typename Dims::Vector1;
+  using SolutionType = Solution<Scalar, K, MaxK>;
+  using SummaryType = Summary<Scalar, K, MaxK>;
+  using ConditioningType = Conditioning<Scalar, K, MaxK>;
+  using PredictionType = Prediction<Scalar>;
+  using WorkspaceType = detail::Workspace<Scalar, K, MaxK>;
+
+  /// Number of regressors K (excluding the intercept).
+  Eigen::Index regressors() const { return m_k; }
+  /// Outcome of option validation at construction; anything but `ok` makes `add` refuse.
+  Status status() const { return m_status; }
+  const FitOptions& fitOptions() const { return m_fit; }
+  /// Accepted samples (weight > 0).
+  std::uint64_t count() const { return m_centering.count(); }
+  /// Sum of forgotten sample weights W.
+  Scalar weightSum() const { return m_centering.weightSum(); }
+  /// Effective sample size F^2/F2 (= count when lambda = 1).
+  Scalar effectiveCount() const { return m_centering.effectiveCount(); }
+  const Centering<Scalar, K, MaxK>& centering() const { return m_centering; }
+
+  /// Folds one sample with weight 1.
+  template <typename XD>
+  Status add(const Eigen::MatrixBase<XD>& x, Scalar y) { return add(x, y, Scalar(1)); }
+
+  /// Folds one sample (x, y) with weight w >= 0. A zero weight is accepted and changes nothing.
+  template <typename XD>
+  Status add(const Eigen::MatrixBase<XD>& x, Scalar y, Scalar w) {
+    static_assert(std::is_same<typename XD::Scalar, Scalar>::value, "rowfold: x must have the estimator's Scalar");
+    const Status s = check(x, y, w);
+    if (s != Status::ok) return s;
+    if (w == Scalar(0)) return Status::ok;
+    if (derived().room() == 0) return Status::capacity_full;
+    fold(x, y, w);
+    return Status::ok;
+  }
+
+  /// Folds one sample from a raw array of K values (firmware convenience).
+  Status add(const Scalar* x, Scalar y, Scalar w = Scalar(1)) {
+    if (x == nullptr) return Status::wrong_size;
+    return add(Eigen::Map<const Vector>(x, m_k), y, w);
+  }
+
+  /// Folds the rows of X (n x K) with responses y (n). All-or-nothing: every row is validated
+  /// first; on any reject nothing is folded and the first reject's Status is returned.
+  template <typename XD, typename YD>
+  Status addRows(const Eigen::MatrixBase<XD>& X, const Eigen::MatrixBase<YD>& y) {
+    return addRowsImpl(X, y, static_cast<const Vector*>(nullptr));
+  }
+  /// Weighted form of addRows (w has n entries).
+  template <typename XD, typename YD, typename WD>
+  Status addRows(const Eigen::MatrixBase<XD>& X, const Eigen::MatrixBase<YD>& y, const Eigen::MatrixBase<WD>& w) {
+    return addRowsImpl(X, y, &w);
+  }
+
+  /// Forgets everything (options kept).
+  void reset() {
+    m_centering.reset();
+    derived().clearState();
+  }
+
+  /// Coefficients. Cost depends on the estimator (see its class comment).
+  SolutionType solve() const {
+    SolutionType s(m_k);
+    derived().solveInto(s);
+    return s;
+  }
+
+  /// Coefficients into a caller-provided Solution (no allocation for any K).
+  Status solveInto(SolutionType& out) const {
+    out.flags = Flags();
+    if (count() == 0) {
+      out.coefficients.setZero(m_k);
+      out.intercept = Scalar(0);
+      out.rank = 0;
+      out.status = Status::empty;
+      return out.status;
+    }
+    if (!derived().factorize(m_work)) return unavailable(out);
+    out.coefficients = m_work.b;
+    out.intercept = m_work.intercept;
+    out.rank = m_work.rank;
+    out.flags = m_work.flags;
+    finishSolution(out);
+    return out.status;
+  }
+
+  /// Full report at confidence `level` (e.g. 0.95).
+  SummaryType summarize(Scalar level = Scalar(0.95)) const {
+    SummaryType s(m_k);
+    summarizeInto(s, level);
+    return s;
+  }
+
+  /// Full report into a caller-provided Summary (no allocation for any K once sized).
+  Status summarizeInto(SummaryType& out, Scalar level = Scalar(0.95)) const {
+    if (count() == 0) {
+      out.status = Status::empty;
+      return out.status;
+    }
+    if (!derived().factorize(m_work)) {
+      out.status = Status::not_available;
+      out.flags = m_work.flags;
+      return out.status;
+    }
+    detail::analyzeSummary(m_work, facts(), level, out);
+    return out.status;
+  }
+
+  /// Condition estimate, VIFs, numerical rank, digit estimates and flags.
+  ConditioningType conditioning() const {
+    ConditioningType c(m_k);
+    conditioningInto(c);
+    return c;
+  }
+  Status conditioningInto(ConditioningType& out) const {
+    if (count() == 0) {
+      out.status = Status::empty;
+      return out.status;
+    }
+    if (!derived().factorize(m_work)) {
+      out.status = Status::not_available;
+      out.flags = m_work.flags;
+      return out.status;
+    }
+    detail::analyzeConditioning(m_work, facts(), out);
+    out.flags.set(m_work.flags);
+    return out.status;
+  }
+
+  /// Point prediction b0 + x0'b.
+  template <typename XD>
+  Scalar predict(const Eigen::MatrixBase<XD>& x0) const {
+    SolutionType& s = m_solution;
+    derived().solveInto(s);
+    return s.intercept + x0.dot(s.coefficients);
+  }
+
+  /// Prediction with confidence and prediction intervals at `level`.
+  template <typename XD>
+  PredictionType predictionInterval(const Eigen::MatrixBase<XD>& x0, Scalar level = Scalar(0.95)) const {
+    PredictionType out;
+    if (x0.size() != m_k) {
+      out.status = Status::wrong_size;
+      return out;
+    }
+    if (count() == 0) return out;
+    if (!derived().factorize(m_work)) {
+      out.status = Status::not_available;
+      return out;
+    }
+    detail::analyzePrediction(m_work, facts(), level, x0, out);
+    return out;
+  }
+
+  /// Centered weighted cross-products: M = X~'X~ (K x K), m = X~'y~, and Syy (the "co-variances"
+  /// of the regressors and with y, unnormalized). Divide by W for covariances.
+  Status crossProducts(Matrix& M, Vector& m, Scalar& syy) const {
+    if (count() == 0) return Status::empty;
+    if (!derived().factorize(m_work)) return Status::not_available;
+    M.noalias() = m_work.R.transpose() * m_work.R;
+    m.noalias() = m_work.R.transpose() * m_work.z;
+    syy = m_work.sst;
+    return Status::ok;
+  }
+
+  /// Weighted covariance matrix of the regressors, M / W.
+  Status covariance(Matrix& C) const {
+    Vector m(m_k);
+    Scalar syy = 0;
+    const Status s = crossProducts(C, m, syy);
+    if (s == Status::ok) C /= weightSum();
+    return s;
+  }
+
+  /// Correlation matrix of the regressors (unit diagonal where a column varies).
+  Status correlation(Matrix& C) const {
+    const Status s = covariance(C);
+    if (s != Status::ok) return s;
+    for (Eigen::Index j = 0; j < m_k; ++j) m_work.v1(j) = C(j, j) > Scalar(0) ? Scalar(1) / std::sqrt(C(j, j)) : Scalar(0);
+    C = m_work.v1.asDiagonal() * C * m_work.v1.asDiagonal();
+    return Status::ok;
+  }
+
+ protected:
+  EstimatorBase(Eigen::Index k, const FitOptions& fit)
+      : m_fit(fit),
+        m_k(k),
+        m_lambda(static_cast<Scalar>(fit.forgetting)),
+        m_centering(k),
+        m_work(k),
+        m_row(k + 1),
+        m_solution(k) {
+    m_status = (K != Eigen::Dynamic && k != K) || k <= 0 ? Status::wrong_size : validate(fit);
+    m_row.setZero();
+  }
+
+  Derived& derived() { return static_cast<Derived&>(*this); }
+  const Derived& derived() const { return static_cast<const Derived&>(*this); }
+
+  Scalar lambda() const { return m_lambda; }
+  Intercept interceptMode() const { return m_fit.intercept; }
+  WorkspaceType& work() const { return m_work; }
+
+  /// Default factor bookkeeping: means, W and SST from the centering.
+  void fillCenteringFacts(WorkspaceType& ws) const {
+    ws.xbar = m_centering.xMean();
+    ws.ybar = m_centering.yMean();
+    ws.weight = m_centering.weightSum();
+    ws.sst = m_centering.yySum();
+  }
+  /// Intercept b0 = ybar - xbar'b (zero without intercept).
+  void recoverIntercept(WorkspaceType& ws) const {
+    ws.intercept = m_fit.intercept == Intercept::fit ? ws.ybar - ws.xbar.dot(ws.b) : Scalar(0);
+  }
+
+  void finishSolution(SolutionType& out) const {
+    out.status = Status::ok;
+    const Eigen::Index p = m_k + (m_fit.intercept == Intercept::fit ? 1 : 0);
+    if (!(effectiveCount() > Scalar(p))) out.flags.set(Flag::too_few_samples);
+    if (out.rank < m_k) out.flags.set(Flag::rank_deficient);
+  }
+
+  Status unavailable(SolutionType& out) const {
+    out.coefficients.setZero(m_k);
+    out.intercept = Scalar(0);
+    out.rank = 0;
+    out.flags = m_work.flags;
+    out.status = Status::not_available;
+    return out.status;
+  }
+
+  detail::SampleFacts<Scalar> facts() const {
+    detail::SampleFacts<Scalar> f;
+    f.count = m_centering.count();
+    f.forget = m_centering.forgetSum();
+    f.forget2 = m_centering.forgetSum2();
+    f.intercept = m_fit.intercept;
+    f.vifLimit = static_cast<Scalar>(m_fit.vifLimit);
+    f.model = Derived::errorModel;
+    return f;
+  }
+
+ private:
+  template <typename XD>
+  Status check(const Eigen::MatrixBase<XD>& x, Scalar y, Scalar w) const {
+    if (m_status != Status::ok) return m_status;
+    if (x.size() != m_k) return Status::wrong_size;
+    if (!(w >= Scalar(0)) || !std::isfinite(w)) return Status::negative_weight;
+    if (!std::isfinite(y) || !x.allFinite()) return Status::nonfinite_input;
+    return Status::ok;
+  }
+
+  template <typename XD>
+  void fold(const Eigen::MatrixBase<XD>& x, Scalar y, Scalar w) {
+    m_centering.scaledRow(x, y, w, m_lambda, m_fit.intercept, m_row);
+    derived().foldRow(x, y, w, m_row);
+    m_centering.commit(x, y, w, m_lambda, m_fit.intercept, m_row);
+  }
+
+  template <typename XD, typename YD, typename WD>
+  Status addRowsImpl(const Eigen::MatrixBase<XD>& X, const Eigen::MatrixBase<YD>& y, const WD* w) {
+    static_assert(std::is_same<typename XD::Scalar, Scalar>::value, "rowfold: X must have the estimator's Scalar");
+    if (m_status != Status::ok) return m_status;
+    const Eigen::Index n = X.rows();
+    if (X.cols() != m_k || y.size() != n || (w != nullptr && w->size() != n)) return Status::wrong_size;
+    for (Eigen::Index i = 0; i < n; ++i) {
+      const Scalar wi = w != nullptr ? Scalar((*w)(i)) : Scalar(1);
+      const Status s = check(X.row(i).transpose(), Scalar(y(i)), wi);
+      if (s != Status::ok) return s;
+    }
+    if (derived().room() < static_cast<std::uint64_t>(n)) return Status::capacity_full;
+    for (Eigen::Index i = 0; i < n; ++i) {
+      const Scalar wi = w != nullptr ? Scalar((*w)(i)) : Scalar(1);
+      if (wi != Scalar(0)) fold(X.row(i).transpose(), Scalar(y(i)), wi);
+    }
+    return Status::ok;
+  }
+
+  FitOptions m_fit;
+  Eigen::Index m_k;
+  Scalar m_lambda;
+  Status m_status = Status::ok;
+  Centering<Scalar, K, MaxK> m_centering;
+  mutable WorkspaceType m_work;
+  Vector1 m_row;
+  mutable SolutionType m_solution;
+};
+
+}  // namespace rowfold

@@ -1,0 +1,223 @@
+/// @file
+/// ForgettingRls: exponentially weighted recursive least squares in covariance (P) form.
+#pragma once
+
+#include <cmath>
+#include <cstdint>
+#include <limits>
+
+#include "rowfold/detail/cholesky.hpp"
+#include "rowfold/estimator_base.hpp"
+
+namespace rowfold {
+
+/// How ForgettingRls starts.
+enum class RlsStart : std::uint8_t {
+  /// Accumulate co-moments until they are positive definite, then P = M^-1, theta = M^-1 m:
+  /// the recursion is then *exactly* least squares, with no prior bias (default).
+  exact,
+  /// P0 = I/delta, theta0 = 0 from the first sample (classic start; biases the fit toward 0
+  /// with weight delta lambda^t, and the statistics include that prior).
+  prior
+};
+
+/// Options of ForgettingRls.
+struct ForgettingRlsOptions : FitOptions {
+  RlsStart start = RlsStart::exact;
+  /// delta of P0 = I/delta for RlsStart::prior (in the units of the centered regressors).
+  double priorPrecision = 1e-6;
+};
+
+/// Recursive least squares with forgetting factor lambda (Ljung & Söderström 1983; Åström &
+/// Wittenmark 1995 §2.2; NUMERICS §1.2(a)). For each scaled centered row (phi, eta):
+/// ```
+///   g = P phi,  alpha = lambda + phi'g,  e = eta - phi'theta,
+///   theta += g e / alpha,  P = (P - g g'/alpha) / lambda,  SSE = lambda SSE + lambda e^2/alpha.
+/// ```
+/// Only the lower triangle of P is updated (symmetry by construction, Verhaegen 1989).
+/// Coefficients are current after every sample: solve() costs O(K).
+///
+/// **Start:** exact initialization by default (see RlsStart) — the first samples are
+/// accumulated as normal equations and P is formed once they determine the fit, so the
+/// recursion reproduces ordinary least squares exactly (in exact arithmetic) and the NIST
+/// checks apply without prior bias. Until then solve() uses the normal-equation path.
+///
+/// **Stability:** P-form RLS is *not* backward stable: P is a difference of positive-definite
+/// matrices and squares the condition number; in float32 with collinear, offset data P can
+/// lose definiteness (NUMERICS §1.3). The estimator checks diag(P) > 0 and alpha > 0 on every
+/// update and raises the sticky `lost_definiteness` flag. Prefer GivensQr for float32.
+///
+/// **Cost:** add ~ 2K^2 multiply-adds; solve O(K); summarize O(K^3).
+template <typename Scalar_, int K_, int MaxK_ = K_>
+class ForgettingRls : public EstimatorBase<ForgettingRls<Scalar_, K_, MaxK_>, Scalar_, K_, MaxK_> {
+  using Base = EstimatorBase<ForgettingRls<Scalar_, K_, MaxK_>, Scalar_, K_, MaxK_>;
+  friend Base;
+
+ public:
+  using typename Base::Dims;
+  using typename Base::Scalar;
+  using typename Base::SolutionType;
+  using typename Base::Vector;
+  using typename Base::Matrix;
+  using typename Base::Vector1;
+  using typename Base::WorkspaceType;
+  using Options = ForgettingRlsOptions;
+  static constexpr detail::ErrorModel errorModel = detail::ErrorModel::online_gram;
+
+  explicit ForgettingRls(const Options& options = Options()) : ForgettingRls(K_ == Eigen::Dynamic ? 0 : K_, options) {}
+  ForgettingRls(Eigen::Index k, const Options& options)
+      : Base(k, options), m_options(options), m_P(k, k), m_theta(k), m_gain(k) {
+    if (this->status() == Status::ok && options.start == RlsStart::prior &&
+        !(options.priorPrecision > 0.0 && std::isfinite(options.priorPrecision)))
+      m_badOptions = true;
+    clearState();
+  }
+
+  Status status() const { return m_badOptions ? Status::invalid_options : Base::status(); }
+  /// True once P and theta are being updated recursively (after the exact start).
+  bool recursive() const { return m_recursive; }
+  /// P = (X~'X~)^-1 (lower triangle valid; meaningful when recursive()).
+  const Matrix& covarianceFactor() const { return m_P; }
+  /// Current slopes theta.
+  const Vector& theta() const { return m_theta; }
+
+  Status solveInto(SolutionType& out) const {
+    if (!m_recursive || this->count() == 0) return Base::solveInto(out);
+    out.flags = Flags();
+    if (m_lost) out.flags.set(Flag::lost_definiteness);
+    out.coefficients = m_theta;
+    out.rank = this->regressors();
+    const auto& c = this->centering();
+    out.intercept = this->interceptMode() == Intercept::fit ? c.yMean() - c.xMean().dot(m_theta) : Scalar(0);
+    this->finishSolution(out);
+    return out.status;
+  }
+
+ private:
+  std::uint64_t room() const {
+    return m_badOptions ? 0 : std::numeric_limits<std::uint64_t>::max();
+  }
+
+  void clearState() {
+    const Eigen::Index k = this->regressors();
+    m_theta.setZero(k);
+    m_sse = Scalar(0);
+    m_lost = false;
+    if (m_options.start == RlsStart::prior) {
+      m_P.setIdentity(k, k);
+      m_P /= static_cast<Scalar>(m_options.priorPrecision);
+      m_recursive = true;
+    } else {
+      m_P.setZero(k, k);
+      m_recursive = false;
+    }
+  }
+
+  template <typename XD>
+  void foldRow(const Eigen::MatrixBase<XD>&, Scalar, Scalar, const Vector1& row) {
+    const Eigen::Index k = this->regressors();
+    const Scalar lambda = this->lambda();
+    const auto phi = row.head(k);
+    const Scalar eta = row(k);
+    if (!m_recursive) {
+      // Exact start: accumulate M (in P's storage) and m (in theta's) until they determine the fit.
+      if (lambda != Scalar(1)) {
+        m_P.template triangularView<Eigen::Lower>() *= lambda;
+        m_theta *= lambda;
+      }
+      m_P.template selfadjointView<Eigen::Lower>().rankUpdate(phi, Scalar(1));
+      m_theta += eta * phi;
+      tryStart(lambda * this->centering().yySum() + eta * eta);
+      return;
+    }
+    m_gain.noalias() = m_P.template selfadjointView<Eigen::Lower>() * phi;
+    const Scalar alpha = lambda + phi.dot(m_gain);
+    const Scalar e = eta - phi.dot(m_theta);
+    if (!(alpha > Scalar(0)) || !std::isfinite(alpha)) {
+      m_lost = true;
+      return;
+    }
+    m_theta += (e / alpha) * m_gain;
+    m_P.template selfadjointView<Eigen::Lower>().rankUpdate(m_gain, -Scalar(1) / alpha);
+    if (lambda != Scalar(1)) m_P.template triangularView<Eigen::Lower>() /= lambda;
+    m_sse = lambda * m_sse + lambda * e * e / alpha;
+    for (Eigen::Index i = 0; i < k; ++i)
+      if (!(m_P(i, i) > Scalar(0))) m_lost = true;
+  }
+
+  /// Forms P = M^-1 and theta once the accumulated co-moments have full numerical rank.
+  void tryStart(Scalar syyWithRow) {
+    const Eigen::Index k = this->regressors();
+    const Eigen::Index p = k + (this->interceptMode() == Intercept::fit ? 1 : 0);
+    if (this->count() + 1 < static_cast<std::uint64_t>(p)) return;
+    WorkspaceType& ws = this->work();
+    const Scalar tol = Scalar(4) * Scalar(k + 1) * std::numeric_limits<Scalar>::epsilon();
+    const Eigen::Index zeroed = detail::semidefiniteCholesky(m_P, ws.scratch, tol, false);
+    if (zeroed != 0 || detail::hasDependentColumn(ws.scratch)) return;
+    // theta = M^-1 m by two triangular solves; P = R^-1 R^-T (the covariance form needs P itself).
+    ws.v1 = m_theta;
+    ws.scratch.template triangularView<Eigen::Upper>().transpose().solveInPlace(ws.v1);
+    ws.v2 = ws.v1;
+    ws.scratch.template triangularView<Eigen::Upper>().solveInPlace(ws.v2);
+    ws.Rinv.setIdentity(k, k);
+    ws.scratch.template triangularView<Eigen::Upper>().solveInPlace(ws.Rinv);
+    const Scalar m2 = ws.v1.squaredNorm();  // m'M^-1 m
+    m_theta = ws.v2;
+    m_P.noalias() = ws.Rinv.template triangularView<Eigen::Upper>() * ws.Rinv.transpose();
+    m_sse = syyWithRow - m2 > Scalar(0) ? syyWithRow - m2 : Scalar(0);  // SSE = Syy - m'M^-1 m
+    m_recursive = true;
+  }
+
+  bool factorize(WorkspaceType& ws) const {
+    const Eigen::Index k = this->regressors();
+    ws.flags = Flags();
+    this->fillCenteringFacts(ws);
+    if (!m_recursive) {
+      // Normal-equation path on the accumulated co-moments.
+      ws.aug2.setZero();
+      ws.aug2.topLeftCorner(k, k) = m_P.template triangularView<Eigen::Lower>();
+      ws.aug2.row(k).head(k) = m_theta.transpose();
+      ws.aug2(k, k) = ws.sst;
+      const Scalar tol = Scalar(4) * Scalar(k + 1) * std::numeric_limits<Scalar>::epsilon();
+      detail::semidefiniteCholesky(ws.aug2, ws.aug, tol, true);
+      ws.R = ws.aug.topLeftCorner(k, k);
+      ws.z = ws.aug.col(k).head(k);
+      ws.rho = ws.aug(k, k);
+      ws.rank = detail::solveUpperWithRank(ws.R, ws.z, ws.b, ws.scratch, ws.scale, ws.pivoted);
+      this->recoverIntercept(ws);
+      return true;
+    }
+    if (m_lost) ws.flags.set(Flag::lost_definiteness);
+    // P = U U' with U upper triangular (Cholesky of the order-reversed P); R = U^-1 then
+    // satisfies R'R = P^-1 = X~'X~ (diagnostics only; the coefficients are theta).
+    ws.scratch = m_P.template selfadjointView<Eigen::Lower>();
+    ws.Rinv = ws.scratch.reverse();
+    const Scalar tol = Scalar(4) * Scalar(k + 1) * std::numeric_limits<Scalar>::epsilon();
+    const Eigen::Index zeroed = detail::semidefiniteCholesky(ws.Rinv, ws.scratch, tol, false);
+    if (zeroed != 0 || !ws.scratch.allFinite()) {
+      ws.flags.set(Flag::lost_definiteness);
+      ws.flags.set(Flag::near_singular);
+      return false;
+    }
+    ws.Rinv = ws.scratch.reverse().transpose();  // U
+    ws.R.setIdentity(k, k);
+    ws.Rinv.template triangularView<Eigen::Upper>().solveInPlace(ws.R);
+    ws.b = m_theta;
+    ws.z.noalias() = ws.R.template triangularView<Eigen::Upper>() * ws.b;
+    ws.rho = std::sqrt(m_sse > Scalar(0) ? m_sse : Scalar(0));
+    ws.rank = k;
+    this->recoverIntercept(ws);
+    return true;
+  }
+
+  Options m_options;
+  Matrix m_P;
+  Vector m_theta;
+  Vector m_gain;
+  Scalar m_sse = 0;
+  bool m_recursive = false;
+  bool m_lost = false;
+  bool m_badOptions = false;
+};
+
+}  // namespace rowfold

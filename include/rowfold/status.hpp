@@ -1,0 +1,85 @@
+/// @file
+/// Status values and warning flags shared by every rowfold estimator.
+#pragma once
+
+#include <cstdint>
+
+namespace rowfold {
+
+/// Outcome of a call that folds samples or validates options.
+/// `ok` is 0; every reject reason has its own value. A call that returns anything
+/// other than `ok` has left the estimator state exactly as it was.
+enum class Status : std::uint8_t {
+  ok = 0,
+  nonfinite_input,  ///< x or y holds NaN or Inf
+  negative_weight,  ///< weight < 0 (or NaN/Inf weight)
+  wrong_size,       ///< x has a different length than the estimator's K
+  capacity_full,    ///< a fixed-capacity estimator (BatchQr) has no room left
+  invalid_options,  ///< the options given at construction were rejected
+  empty,            ///< nothing to solve yet (no sample folded)
+  not_available     ///< the requested quantity cannot be formed (e.g. factor lost definiteness)
+};
+
+/// Short, stable, allocation-free name of a status (for logs and reports).
+constexpr const char* nameOf(Status s) noexcept {
+  switch (s) {
+    case Status::ok: return "ok";
+    case Status::nonfinite_input: return "nonfinite_input";
+    case Status::negative_weight: return "negative_weight";
+    case Status::wrong_size: return "wrong_size";
+    case Status::capacity_full: return "capacity_full";
+    case Status::invalid_options: return "invalid_options";
+    case Status::empty: return "empty";
+    case Status::not_available: return "not_available";
+  }
+  return "unknown";
+}
+
+/// Warning flags (a bit set). A flag says how far a fit can be trusted; it never
+/// stops the estimator from returning a defined answer.
+enum class Flag : std::uint16_t {
+  none = 0,
+  ill_conditioned = 1u << 0,   ///< scaled condition beyond u^-1/2: covariances/VIFs lose all digits
+  near_singular = 1u << 1,     ///< singular to working precision for this estimator and Scalar
+  collinear = 1u << 2,         ///< a VIF above the threshold (10 = common practice)
+  rank_deficient = 1u << 3,    ///< numerical rank < K; dependent coefficients set to zero
+  too_few_samples = 1u << 4,   ///< effective sample size <= number of coefficients
+  lost_definiteness = 1u << 5  ///< a covariance-form state (P) is no longer positive definite
+};
+
+/// A set of `Flag`s.
+class Flags {
+ public:
+  constexpr Flags() noexcept = default;
+  constexpr Flags(Flag f) noexcept : m_bits(static_cast<std::uint16_t>(f)) {}  // NOLINT implicit by design
+  constexpr bool has(Flag f) const noexcept { return (m_bits & static_cast<std::uint16_t>(f)) != 0; }
+  constexpr bool any() const noexcept { return m_bits != 0; }
+  constexpr void set(Flag f) noexcept { m_bits = static_cast<std::uint16_t>(m_bits | static_cast<std::uint16_t>(f)); }
+  constexpr void set(Flags f) noexcept { m_bits = static_cast<std::uint16_t>(m_bits | f.m_bits); }
+  constexpr std::uint16_t bits() const noexcept { return m_bits; }
+  friend constexpr bool operator==(Flags a, Flags b) noexcept { return a.m_bits == b.m_bits; }
+  friend constexpr bool operator!=(Flags a, Flags b) noexcept { return a.m_bits != b.m_bits; }
+
+ private:
+  std::uint16_t m_bits = 0;
+};
+
+/// Stable name of one flag.
+constexpr const char* nameOf(Flag f) noexcept {
+  switch (f) {
+    case Flag::none: return "none";
+    case Flag::ill_conditioned: return "ill_conditioned";
+    case Flag::near_singular: return "near_singular";
+    case Flag::collinear: return "collinear";
+    case Flag::rank_deficient: return "rank_deficient";
+    case Flag::too_few_samples: return "too_few_samples";
+    case Flag::lost_definiteness: return "lost_definiteness";
+  }
+  return "unknown";
+}
+
+/// Every flag, for iteration in reports.
+constexpr Flag kAllFlags[] = {Flag::ill_conditioned, Flag::near_singular,  Flag::collinear,
+                              Flag::rank_deficient,  Flag::too_few_samples, Flag::lost_definiteness};
+
+}  // namespace rowfold
