@@ -247,10 +247,22 @@ W hillStart(W q, W nu) {
     y = (((((W(0.4) * y + W(6.3)) * y + W(36)) * y + W(94.5)) / c - y - W(3)) / b + W(1)) * x;
     y = std::expm1(a * y * y);
   } else {
+    if (!(y > 0)) return 0;  // underflow (q tiny): the caller falls back to tailStart
     y = ((W(1) / (((nu + 6) / (nu * y) - W(0.089) * d - W(0.822)) * (nu + 2) * 3) +
           W(0.5) / (nu + 4)) * y - 1) * (nu + 1) / (nu + 2) + W(1) / y;
   }
   return std::sqrt(nu * y);
+}
+
+/// Starting value from I_x(a, 1/2) ~ x^a / (a B(a, 1/2)), a = nu/2, x = nu/(nu + t^2): exact
+/// as q -> 0, and also fair for any q < 1/2 when nu < 1. Worked in logarithms, so it stays
+/// finite up to t ~ 1e308 (where Hill's formula overflows, e.g. nu ~ 1, q ~ 1e-300).
+template <typename W>
+W tailStart(W q, W nu) {
+  const W a = nu / 2;
+  const W logB = W(0.5) * std::log(kPi<W>) - logGammaRatioHalf(a);
+  const W logX = std::fmin((std::log(2 * q * a) + logB) / a, W(-0.1));
+  return std::exp((std::log(nu) + std::log(-std::expm1(logX)) - logX) / 2);
 }
 
 /// Upper quantile t > 0 with P(T > t) = q, given also c = 1/2 - q exactly (q < 1/2, finite nu).
@@ -259,15 +271,8 @@ W studentTUpper(W q, W c, W nu) {
   if (nu == 1) return q < W(0.25) ? W(1) / std::tan(kPi<W> * q) : std::tan(kPi<W> * c);
   if (nu == 2) return 2 * c / std::sqrt(2 * q * (1 - q));
   const bool tail = q < W(0.25);
-  W t;
-  if (nu >= 1) {
-    t = hillStart(q, nu);
-  } else {  // I_x(a, 1/2) ~ x^a / (a B(a, 1/2)): small x, or any x as nu -> 0
-    const W a = nu / 2;
-    const W logB = W(0.5) * std::log(kPi<W>) - logGammaRatioHalf(a);
-    const W logX = std::fmin((std::log(2 * q * a) + logB) / a, W(-0.1));
-    t = std::exp((std::log(nu) + std::log(-std::expm1(logX)) - logX) / 2);
-  }
+  W t = nu >= 1 ? hillStart(q, nu) : W(0);
+  if (!(t > 0 && t <= std::numeric_limits<W>::max())) t = tailStart(q, nu);
   // Halley steps in (log t, log P) with P the upper (tail) or central probability; in those
   // coordinates the curve is nearly straight, so the iteration is robust, and the residual
   // log(P/target) is free of cancellation.
