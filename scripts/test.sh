@@ -1,0 +1,13 @@
+#!/usr/bin/env bash
+# Builds everything and runs the whole test suite (including the demo smoke test).
+# Usage: ./scripts/test.sh   (from any directory)
+set -euo pipefail
+
+cd "$(dirname "${BASH_SOURCE[0]}")/.."
+# shellcheck source=scripts/common.sh
+source scripts/common.sh
+
+rowfold_need_packages cmake g++ "$(rowfold_build_tool)" libeigen3-dev doctest-dev liblapacke-dev liblapack-dev
+rowfold_configure
+cmake --build build -j2
+ctest --test-dir build --output-on-failure -j2

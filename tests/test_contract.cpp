@@ -1,0 +1,241 @@
+// The shared contract, written once and run over every estimator x Scalar x fixed/dynamic K.
+// References: exact-model recovery (data generated from known coefficients, invented here);
+// weighted and exponentially weighted least squares definitions (Björck 1996 §4.4; NUMERICS §1.1)
+// checked across estimators against BatchQr, which applies the weights lambda^age explicitly.
+#include <doctest/doctest.h>
+
+#include <cmath>
+#include <cstring>
+#include <limits>
+#include <random>
+
+#include "rowfold/rowfold.hpp"
+#include "support/doctest_rowfold.hpp"
+
+namespace {
+
+using rowfold::Flag;
+using rowfold::Status;
+
+template <typename Scalar>
+Scalar tolerance() {
+  return std::is_same<Scalar, float>::value ? Scalar(2e-3) : Scalar(1e-9);
+}
+
+// Factories give every estimator the same construction syntax for fixed and dynamic K.
+template <template <typename, int, int> class E, typename S, int K, bool Dyn>
+struct Make {
+  using Type = E<S, Dyn ? Eigen::Dynamic : K, Dyn ? Eigen::Dynamic : K>;
+  using Scalar = S;
+  static constexpr int k = K;
+  static Type make(rowfold::FitOptions fit = {}) {
+    typename Type::Options o;
+    static_cast<rowfold::FitOptions&>(o) = fit;
+    return Type(k, o);
+  }
+};
+template <typename S, int K, int M>
+using Batch = rowfold::BatchQr<S, K, 256, M>;
+
+#define ROWFOLD_CONTRACT_TYPES(S)                                                              \
+  Make<Batch, S, 3, false>, Make<rowfold::GivensQr, S, 3, false>,                              \
+      Make<rowfold::NormalEquations, S, 3, false>, Make<rowfold::ForgettingRls, S, 3, false>,  \
+      Make<Batch, S, 3, true>, Make<rowfold::GivensQr, S, 3, true>,                            \
+      Make<rowfold::NormalEquations, S, 3, true>, Make<rowfold::ForgettingRls, S, 3, true>
+
+template <typename Scalar>
+Eigen::Matrix<Scalar, 3, 1> randomRow(std::mt19937_64& rng) {
+  std::normal_distribution<double> n(0.0, 1.0);
+  Eigen::Matrix<Scalar, 3, 1> x;
+  x << Scalar(10 + n(rng)), Scalar(-5 + 2 * n(rng)), Scalar(n(rng) * 0.5 + 3 * n(rng));
+  return x;
+}
+
+template <typename Scalar>
+Scalar truth(const Eigen::Matrix<Scalar, 3, 1>& x) {
+  return Scalar(1.5) + Scalar(2) * x(0) - Scalar(3) * x(1) + Scalar(0.5) * x(2);
+}
+
+}  // namespace
+
+TEST_CASE_TEMPLATE_DEFINE("contract", F, contract_id) {
+  using Scalar = typename F::Scalar;
+  using Vec = Eigen::Matrix<Scalar, 3, 1>;
+  const Scalar tol = tolerance<Scalar>();
+  std::mt19937_64 rng(2026);
+
+  SUBCASE("empty estimator reports empty, never NaN coefficients") {
+    auto est = F::make();
+    CHECK(est.status() == Status::ok);
+    const auto s = est.solve();
+    CHECK(s.status == Status::empty);
+    CHECK(s.coefficients.allFinite());
+    CHECK(est.summarize().status == Status::empty);
+  }
+
+  SUBCASE("recovers an exact model, intercept included") {
+    auto est = F::make();
+    for (int i = 0; i < 50; ++i) {
+      const Vec x = randomRow<Scalar>(rng);
+      REQUIRE(est.add(x, truth(x)) == Status::ok);
+    }
+    const auto s = est.solve();
+    REQUIRE(s.status == Status::ok);
+    CHECK(s.rank == 3);
+    CHECK(s.coefficients(0) == doctest::Approx(2).epsilon(tol));
+    CHECK(s.coefficients(1) == doctest::Approx(-3).epsilon(tol));
+    CHECK(s.coefficients(2) == doctest::Approx(0.5).epsilon(tol));
+    CHECK(s.intercept == doctest::Approx(1.5).epsilon(tol * 10));
+    CHECK_FALSE(s.flags.any());
+    const Vec x0(Scalar(1), Scalar(2), Scalar(3));
+    CHECK(est.predict(x0) == doctest::Approx(double(truth(x0))).epsilon(tol * 10));
+    const auto p = est.predictionInterval(x0);
+    CHECK(p.status == Status::ok);
+    CHECK(p.confidenceLower <= p.value);
+    CHECK(p.predictionLower <= p.confidenceLower);
+  }
+
+  SUBCASE("bad input is refused with a distinct Status and leaves the state bit-identical") {
+    auto est = F::make();
+    for (int i = 0; i < 10; ++i) {
+      const Vec x = randomRow<Scalar>(rng);
+      REQUIRE(est.add(x, truth(x)) == Status::ok);
+    }
+    const auto before = est;
+    static unsigned char snapshot[sizeof est];
+    std::memcpy(snapshot, static_cast<const void*>(&est), sizeof est);
+    const auto bytesEqual = [&]() {
+      // Fixed-size estimators are plain values: compare every byte of the object. Dynamic ones
+      // hold heap pointers, so compare what they report instead.
+      if (F::Type::K != Eigen::Dynamic) return std::memcmp(snapshot, static_cast<const void*>(&est), sizeof est) == 0;
+      return before.solve().coefficients == est.solve().coefficients && before.count() == est.count() &&
+             before.weightSum() == est.weightSum();
+    };
+    const Scalar nan = std::numeric_limits<Scalar>::quiet_NaN();
+    const Scalar inf = std::numeric_limits<Scalar>::infinity();
+    Vec bad = randomRow<Scalar>(rng);
+    bad(1) = nan;
+    CHECK(est.add(bad, Scalar(1)) == Status::nonfinite_input);
+    CHECK(bytesEqual());
+    CHECK(est.add(randomRow<Scalar>(rng), inf) == Status::nonfinite_input);
+    CHECK(bytesEqual());
+    CHECK(est.add(randomRow<Scalar>(rng), Scalar(1), Scalar(-1)) == Status::negative_weight);
+    CHECK(est.add(randomRow<Scalar>(rng), Scalar(1), nan) == Status::negative_weight);
+    CHECK(bytesEqual());
+    Eigen::Matrix<Scalar, Eigen::Dynamic, 1> wrong(4);
+    wrong.setOnes();
+    CHECK(est.add(wrong, Scalar(1)) == Status::wrong_size);
+    CHECK(bytesEqual());
+    // Zero weight: accepted, changes nothing.
+    CHECK(est.add(randomRow<Scalar>(rng), Scalar(5), Scalar(0)) == Status::ok);
+    CHECK(bytesEqual());
+    // addRows is all-or-nothing.
+    Eigen::Matrix<Scalar, Eigen::Dynamic, 3> X(3, 3);
+    Eigen::Matrix<Scalar, Eigen::Dynamic, 1> y(3);
+    X.setOnes();
+    y.setOnes();
+    X(2, 1) = nan;
+    CHECK(est.addRows(X, y) == Status::nonfinite_input);
+    CHECK(bytesEqual());
+  }
+
+  SUBCASE("a weight of 2 equals the sample folded twice") {
+    auto a = F::make();
+    auto b = F::make();
+    for (int i = 0; i < 30; ++i) {
+      const Vec x = randomRow<Scalar>(rng);
+      const Scalar y = truth(x) + Scalar(std::normal_distribution<double>(0, 1)(rng));
+      const Scalar w = (i % 3 == 0) ? Scalar(2) : Scalar(1);
+      REQUIRE(a.add(x, y, w) == Status::ok);
+      for (int r = 0; r < int(w); ++r) REQUIRE(b.add(x, y) == Status::ok);
+    }
+    const auto sa = a.solve();
+    const auto sb = b.solve();
+    for (int j = 0; j < 3; ++j) CHECK(sa.coefficients(j) == doctest::Approx(double(sb.coefficients(j))).epsilon(tol * 10));
+    CHECK(sa.intercept == doctest::Approx(double(sb.intercept)).epsilon(tol * 10));
+  }
+
+  SUBCASE("forgetting: agrees with explicitly weighted BatchQr, and R'R/SSE stay consistent") {
+    rowfold::FitOptions fit;
+    fit.forgetting = 0.95;
+    auto est = F::make(fit);
+    typename Make<Batch, double, 3, false>::Type ref(3, [&] {
+      rowfold::BatchQrOptions o;
+      o.forgetting = 0.95;
+      return o;
+    }());
+    for (int i = 0; i < 200; ++i) {
+      Eigen::Matrix<double, 3, 1> xd = randomRow<double>(rng);
+      // a drifting process: the first slope moves
+      const double y = truth(xd) + 0.01 * i * xd(0) + std::normal_distribution<double>(0, 0.1)(rng);
+      REQUIRE(est.add(Vec(xd.template cast<Scalar>()), Scalar(y)) == Status::ok);
+      REQUIRE(ref.add(xd, y) == Status::ok);
+    }
+    const auto s = est.solve();
+    const auto r = ref.solve();
+    for (int j = 0; j < 3; ++j) CHECK(double(s.coefficients(j)) == doctest::Approx(r.coefficients(j)).epsilon(tol * 100));
+    CHECK(est.effectiveCount() == doctest::Approx((1 + 0.95) / (1 - 0.95)).epsilon(1e-3));  // Kish, NUMERICS §7.2
+  }
+
+  SUBCASE("exactly collinear inputs give a defined answer with rank_deficient, never NaN") {
+    auto est = F::make();
+    for (int i = 0; i < 40; ++i) {
+      Vec x = randomRow<Scalar>(rng);
+      x(2) = x(0) + x(1);
+      REQUIRE(est.add(x, truth(x)) == Status::ok);
+    }
+    const auto s = est.solve();
+    CHECK(s.status == Status::ok);
+    CHECK(s.coefficients.allFinite());
+    CHECK(std::isfinite(s.intercept));
+    CHECK(s.flags.has(Flag::rank_deficient));
+    CHECK(s.rank == 2);
+    const auto c = est.conditioning();
+    CHECK(c.flags.has(Flag::rank_deficient));
+    CHECK(c.flags.has(Flag::near_singular));
+  }
+
+  SUBCASE("too few samples is flagged") {
+    auto est = F::make();
+    for (int i = 0; i < 3; ++i) {
+      const Vec x = randomRow<Scalar>(rng);
+      REQUIRE(est.add(x, truth(x)) == Status::ok);
+    }
+    CHECK(est.solve().flags.has(Flag::too_few_samples));
+  }
+
+  SUBCASE("invalid options are refused with a Status, not an assert") {
+    rowfold::FitOptions fit;
+    fit.forgetting = 0.0;
+    auto est = F::make(fit);
+    CHECK(est.status() == Status::invalid_options);
+    CHECK(est.add(randomRow<Scalar>(rng), Scalar(1)) == Status::invalid_options);
+    CHECK(est.count() == 0);
+  }
+
+  SUBCASE("reset forgets everything") {
+    auto est = F::make();
+    for (int i = 0; i < 10; ++i) REQUIRE(est.add(randomRow<Scalar>(rng), Scalar(1)) == Status::ok);
+    est.reset();
+    CHECK(est.count() == 0);
+    CHECK(est.solve().status == Status::empty);
+  }
+}
+
+TEST_CASE_TEMPLATE_INVOKE(contract_id, ROWFOLD_CONTRACT_TYPES(float), ROWFOLD_CONTRACT_TYPES(double),
+                          ROWFOLD_CONTRACT_TYPES(long double));
+
+TEST_CASE("collinear inputs raise the VIF flag (threshold 10 = common practice, Marquardt 1970)") {
+  rowfold::GivensQr<double, 2> est;
+  std::mt19937_64 rng(7);
+  std::normal_distribution<double> n(0, 1);
+  for (int i = 0; i < 500; ++i) {
+    const double a = n(rng);
+    Eigen::Vector2d x(a, a + 0.1 * n(rng));  // corr ~ 0.995 -> VIF ~ 100
+    REQUIRE(est.add(x, a + n(rng)) == Status::ok);
+  }
+  const auto c = est.conditioning();
+  CHECK(c.flags.has(Flag::collinear));
+  CHECK(c.vif(0) > 10);
+  CHECK_FALSE(c.flags.has(Flag::near_singular));
+}
