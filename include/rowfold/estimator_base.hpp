@@ -40,6 +40,10 @@ namespace rowfold {
 ///
 /// Allocation: fixed K allocates nothing, ever. Eigen::Dynamic K allocates in the constructor
 /// only. No member function throws.
+///
+/// Threads: the const queries (solve, summarize, conditioning, predict) use scratch storage
+/// inside the object, so one estimator must not be queried from two threads at once; copies
+/// are independent.
 template <typename Derived, typename Scalar_, int K_, int MaxK_>
 class EstimatorBase {
  public:
