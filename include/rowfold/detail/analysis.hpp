@@ -120,7 +120,10 @@ bool analyzeConditioning(Workspace<Scalar, K, MaxK>& ws, const SampleFacts<Scala
       Scalar err;
       if (!gram) {
         // First-order perturbation of a backward-stable QR solution (NUMERICS §6.5).
-        err = ws.Rinv.row(j).norm() * (bscale + etaY * ynorm) + ws.rho * ws.v2.cwiseAbs().dot(ws.v1);
+        err = ws.Rinv.row(j).norm() * (bscale + etaY * ynorm);
+        // Large-residual term rho |C| eta D. Refinement on the augmented system with twofold
+        // residuals removes it (Björck 1967), so it is omitted for refined_raw.
+        if (facts.model != ErrorModel::refined_raw) err += ws.rho * ws.v2.cwiseAbs().dot(ws.v1);
       } else {
         // Cross-product state: |dM_kl| <~ eta D_k D_l, |dm_k| <~ eta D_k ||y~||.
         err = ws.v2.cwiseAbs().dot(ws.v1) * (dscale + ynorm);
