@@ -5,6 +5,7 @@
 #include <cmath>
 #include <cstdint>
 #include <limits>
+#include <type_traits>
 
 #include "rowfold/detail/twofold.hpp"
 #include "rowfold/estimator_base.hpp"
@@ -51,6 +52,7 @@ class BatchQr : public EstimatorBase<BatchQr<Scalar_, K_, Capacity_, MaxK_>, Sca
   using typename Base::WorkspaceType;
   using Options = BatchQrOptions;
   static constexpr detail::ErrorModel errorModel = detail::ErrorModel::refined_raw;
+  static constexpr EstimatorKind kind = EstimatorKind::batch_qr;
   using RowMatrix = Eigen::Matrix<Scalar, Eigen::Dynamic, K_, Eigen::ColMajor, Capacity_, MaxK_>;
   using Column = Eigen::Matrix<Scalar, Eigen::Dynamic, 1, Eigen::ColMajor, Capacity_, 1>;
   using Design = Eigen::Matrix<Scalar, Eigen::Dynamic, Dims::K1, Eigen::ColMajor, Capacity_, Dims::MaxK1>;
@@ -91,6 +93,29 @@ class BatchQr : public EstimatorBase<BatchQr<Scalar_, K_, Capacity_, MaxK_>, Sca
     m_x.setZero();
     m_y.setZero();
     m_w.setZero();
+  }
+
+  template <typename Self, typename V>
+  static void visitOptions(Self& self, V& v) {
+    const std::uint64_t capacity = static_cast<std::uint64_t>(self.m_capacity);
+    v.field(capacity);
+  }
+  /// Only the rows in use are stored: n, then x (n x K, column by column), y, w.
+  template <typename Self, typename V>
+  static void visitState(Self& self, V& v) {
+    std::uint64_t n = static_cast<std::uint64_t>(self.m_n);
+    v.field(n);
+    if constexpr (!std::is_const<Self>::value) self.m_n = static_cast<Eigen::Index>(n);
+    const std::size_t rows = static_cast<std::size_t>(self.m_n);
+    for (Eigen::Index j = 0; j < self.m_x.cols(); ++j) v.array(self.m_x.col(j).data(), rows);
+    v.array(self.m_y.data(), rows);
+    v.array(self.m_w.data(), rows);
+  }
+  std::size_t expectedStateBytes(const unsigned char* state, std::size_t available) const {
+    if (available < sizeof(std::uint64_t)) return std::numeric_limits<std::size_t>::max();
+    const auto n = detail::getField<std::uint64_t>(state);
+    if (n > static_cast<std::uint64_t>(m_capacity)) return std::numeric_limits<std::size_t>::max();
+    return sizeof(std::uint64_t) + static_cast<std::size_t>(n) * static_cast<std::size_t>(this->regressors() + 2) * sizeof(Scalar);
   }
 
   template <typename XD>

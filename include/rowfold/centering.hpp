@@ -3,6 +3,7 @@
 #pragma once
 
 #include <cmath>
+#include <cstddef>
 #include <cstdint>
 
 #include "rowfold/detail/dims.hpp"
@@ -82,6 +83,18 @@ class Centering {
     m_forget = lambda * m_forget + Scalar(1);
     m_forget2 = lambda * lambda * m_forget2 + Scalar(1);
     ++m_count;
+  }
+
+  /// Visits every state field in a fixed order (snapshot/restore; Self may be const).
+  template <typename Self, typename V>
+  static void visitState(Self& self, V& v) {
+    v.array(self.m_xbar.data(), static_cast<std::size_t>(self.m_xbar.size()));
+    v.field(self.m_ybar);
+    v.field(self.m_weight);
+    v.field(self.m_forget);
+    v.field(self.m_forget2);
+    v.field(self.m_syy);
+    v.field(self.m_count);
   }
 
   const Vector& xMean() const { return m_xbar; }

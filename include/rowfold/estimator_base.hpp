@@ -4,6 +4,8 @@
 
 #include <Eigen/Core>
 #include <cmath>
+#include <cstring>
+#include <limits>
 #include <type_traits>
 
 #include "rowfold/centering.hpp"
@@ -12,6 +14,7 @@
 #include "rowfold/detail/workspace.hpp"
 #include "rowfold/options.hpp"
 #include "rowfold/results.hpp"
+#include "rowfold/snapshot.hpp"
 #include "rowfold/status.hpp"
 
 namespace rowfold {
@@ -35,7 +38,9 @@ namespace rowfold {
 /// - `std::uint64_t room() const`: how many more samples fit (capacity-bound estimators);
 /// - `void clearState()`;
 /// - `bool factorize(Workspace&) const`: fill R, z, rho, b, intercept, means, W, SST;
-/// - `static constexpr detail::ErrorModel errorModel`.
+/// - `static constexpr detail::ErrorModel errorModel` and `static constexpr EstimatorKind kind`;
+/// - `static void visitOptions(Self&, V&)` and `static void visitState(Self&, V&)`: the fields of
+///   its options and state, in a fixed order, for snapshot/restore.
 /// Estimators may shadow `solveInto` with a cheaper path (back substitution, RLS theta).
 ///
 /// Allocation: fixed K allocates nothing, ever. Eigen::Dynamic K allocates in the constructor
@@ -207,6 +212,62 @@ class EstimatorBase {
     return out;
   }
 
+  /// Size in bytes of the image `snapshot` writes now.
+  std::size_t snapshotSize() const {
+    detail::ImageCounter c;
+    visitPayload(derived(), m_centering, c);
+    return detail::kSnapshotHeaderSize + c.bytes + 4;
+  }
+
+  /// Writes the state to `buffer` as a versioned, checksummed image (layout in snapshot.hpp).
+  /// On success `written` holds the image size. Never allocates.
+  Status snapshot(unsigned char* buffer, std::size_t capacity, std::size_t& written) const {
+    written = 0;
+    const std::size_t size = snapshotSize();
+    if (buffer == nullptr || capacity < size) return Status::buffer_too_small;
+    writeHeader(buffer, size - detail::kSnapshotHeaderSize - 4);
+    detail::ImageWriter w{buffer + detail::kSnapshotHeaderSize};
+    visitPayload(derived(), m_centering, w);
+    detail::putField(buffer + size - 4, detail::crc32(buffer, size - 4));
+    written = size;
+    return Status::ok;
+  }
+
+  /// Restores a state written by `snapshot` of an estimator of the same kind, Scalar, K and
+  /// options. A truncated or damaged image gives `corrupt_image`, a foreign one
+  /// `image_mismatch`; in both cases the state is untouched. Never allocates.
+  Status restore(const unsigned char* image, std::size_t length) {
+    using detail::getField;
+    if (derived().status() != Status::ok) return derived().status();
+    const std::size_t hs = detail::kSnapshotHeaderSize;
+    if (image == nullptr || length < hs + 4 || std::memcmp(image, "RFLD", 4) != 0) return Status::corrupt_image;
+    const std::uint32_t payload = getField<std::uint32_t>(image + 20);
+    if (static_cast<std::size_t>(payload) + hs + 4 != length) return Status::corrupt_image;
+    if (detail::crc32(image, length - 4) != getField<std::uint32_t>(image + length - 4)) return Status::corrupt_image;
+    unsigned char expect[detail::kSnapshotHeaderSize];
+    writeHeader(expect, payload);
+    if (std::memcmp(expect, image, hs) != 0) return Status::image_mismatch;
+    // Options must match byte for byte; then the state must have exactly the expected size.
+    detail::ImageCounter optionBytes;
+    Derived::visitOptions(derived(), optionBytes);
+    unsigned char ownOptions[64];
+    if (optionBytes.bytes > sizeof ownOptions) return Status::image_mismatch;
+    detail::ImageWriter ow{ownOptions};
+    Derived::visitOptions(derived(), ow);
+    const unsigned char* p = image + hs;
+    if (optionBytes.bytes > payload || std::memcmp(ownOptions, p, optionBytes.bytes) != 0) return Status::image_mismatch;
+    detail::ImageCounter centerBytes;
+    Centering<Scalar, K, MaxK>::visitState(m_centering, centerBytes);
+    const std::size_t head = optionBytes.bytes + centerBytes.bytes;
+    if (head > payload) return Status::corrupt_image;
+    const std::size_t stateBytes = derived().expectedStateBytes(p + head, payload - head);
+    if (head + stateBytes != payload) return Status::image_mismatch;
+    detail::ImageReader r{p + optionBytes.bytes};
+    Centering<Scalar, K, MaxK>::visitState(m_centering, r);
+    Derived::visitState(derived(), r);
+    return Status::ok;
+  }
+
   /// Centered weighted cross-products: M = X~'X~ (K x K), m = X~'y~, and Syy (the "co-variances"
   /// of the regressors and with y, unnormalized). Divide by W for covariances.
   Status crossProducts(Matrix& M, Vector& m, Scalar& syy) const {
@@ -284,6 +345,13 @@ class EstimatorBase {
     return out.status;
   }
 
+  /// Default: the state has a fixed size, the one it has now.
+  std::size_t expectedStateBytes(const unsigned char*, std::size_t) const {
+    detail::ImageCounter c;
+    Derived::visitState(derived(), c);
+    return c.bytes;
+  }
+
   detail::SampleFacts<Scalar> facts() const {
     detail::SampleFacts<Scalar> f;
     f.count = m_centering.count();
@@ -296,6 +364,28 @@ class EstimatorBase {
   }
 
  private:
+  template <typename Self, typename C, typename V>
+  static void visitPayload(Self& self, C& centering, V& v) {
+    Derived::visitOptions(self, v);
+    Centering<Scalar, K, MaxK>::visitState(centering, v);
+    Derived::visitState(self, v);
+  }
+
+  void writeHeader(unsigned char* h, std::size_t payload) const {
+    std::memset(h, 0, detail::kSnapshotHeaderSize);
+    std::memcpy(h, "RFLD", 4);
+    detail::putField(h + 4, kSnapshotVersion);
+    h[6] = static_cast<unsigned char>(sizeof(Scalar));
+    h[7] = static_cast<unsigned char>(std::numeric_limits<Scalar>::digits);
+    h[8] = static_cast<unsigned char>(Derived::kind);
+    h[9] = static_cast<unsigned char>(m_fit.intercept == Intercept::fit ? 0 : 1);
+    detail::putField(h + 12, detail::kByteOrderTag);
+    detail::putField(h + 16, static_cast<std::uint32_t>(m_k));
+    detail::putField(h + 20, static_cast<std::uint32_t>(payload));
+    detail::putField(h + 24, m_fit.forgetting);
+    detail::putField(h + 32, m_fit.vifLimit);
+  }
+
   template <typename XD>
   Status check(const Eigen::MatrixBase<XD>& x, Scalar y, Scalar w) const {
     if (m_status != Status::ok) return m_status;

@@ -63,6 +63,7 @@ class ForgettingRls : public EstimatorBase<ForgettingRls<Scalar_, K_, MaxK_>, Sc
   using typename Base::WorkspaceType;
   using Options = ForgettingRlsOptions;
   static constexpr detail::ErrorModel errorModel = detail::ErrorModel::online_gram;
+  static constexpr EstimatorKind kind = EstimatorKind::forgetting_rls;
 
   explicit ForgettingRls(const Options& options = Options()) : ForgettingRls(K_ == Eigen::Dynamic ? 0 : K_, options) {}
   ForgettingRls(Eigen::Index k, const Options& options)
@@ -111,6 +112,20 @@ class ForgettingRls : public EstimatorBase<ForgettingRls<Scalar_, K_, MaxK_>, Sc
       m_P.setZero(k, k);
       m_recursive = false;
     }
+  }
+
+  template <typename Self, typename V>
+  static void visitOptions(Self& self, V& v) {
+    v.field(self.m_options.start);
+    v.field(self.m_options.priorPrecision);
+  }
+  template <typename Self, typename V>
+  static void visitState(Self& self, V& v) {
+    v.array(self.m_P.data(), static_cast<std::size_t>(self.m_P.size()));
+    v.array(self.m_theta.data(), static_cast<std::size_t>(self.m_theta.size()));
+    v.field(self.m_sse);
+    v.field(self.m_recursive);
+    v.field(self.m_lost);
   }
 
   template <typename XD>

@@ -44,6 +44,7 @@ class GivensQr : public EstimatorBase<GivensQr<Scalar_, K_, MaxK_>, Scalar_, K_,
   using typename Base::WorkspaceType;
   using Options = GivensQrOptions;
   static constexpr detail::ErrorModel errorModel = detail::ErrorModel::online_qr;
+  static constexpr EstimatorKind kind = EstimatorKind::givens_qr;
 
   /// Fixed K.
   explicit GivensQr(const Options& options = Options()) : GivensQr(K_ == Eigen::Dynamic ? 0 : K_, options) {}
@@ -74,6 +75,13 @@ class GivensQr : public EstimatorBase<GivensQr<Scalar_, K_, MaxK_>, Scalar_, K_,
  private:
   std::uint64_t room() const { return std::numeric_limits<std::uint64_t>::max(); }
   void clearState() { m_factor.setZero(); }
+
+  template <typename Self, typename V>
+  static void visitOptions(Self&, V&) {}
+  template <typename Self, typename V>
+  static void visitState(Self& self, V& v) {
+    v.array(self.m_factor.data(), static_cast<std::size_t>(self.m_factor.size()));
+  }
 
   template <typename XD>
   void foldRow(const Eigen::MatrixBase<XD>&, Scalar, Scalar, const Vector1& rowIn) {

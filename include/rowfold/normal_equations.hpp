@@ -35,6 +35,7 @@ class NormalEquations : public EstimatorBase<NormalEquations<Scalar_, K_, MaxK_>
   using typename Base::WorkspaceType;
   using Options = NormalEquationsOptions;
   static constexpr detail::ErrorModel errorModel = detail::ErrorModel::online_gram;
+  static constexpr EstimatorKind kind = EstimatorKind::normal_equations;
 
   explicit NormalEquations(const Options& options = Options())
       : NormalEquations(K_ == Eigen::Dynamic ? 0 : K_, options) {}
@@ -49,6 +50,13 @@ class NormalEquations : public EstimatorBase<NormalEquations<Scalar_, K_, MaxK_>
  private:
   std::uint64_t room() const { return std::numeric_limits<std::uint64_t>::max(); }
   void clearState() { m_gram.setZero(); }
+
+  template <typename Self, typename V>
+  static void visitOptions(Self&, V&) {}
+  template <typename Self, typename V>
+  static void visitState(Self& self, V& v) {
+    v.array(self.m_gram.data(), static_cast<std::size_t>(self.m_gram.size()));
+  }
 
   template <typename XD>
   void foldRow(const Eigen::MatrixBase<XD>&, Scalar, Scalar, const Vector1& row) {

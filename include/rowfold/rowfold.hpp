@@ -10,5 +10,6 @@
 #include "rowfold/normal_equations.hpp"
 #include "rowfold/options.hpp"
 #include "rowfold/results.hpp"
+#include "rowfold/snapshot.hpp"
 #include "rowfold/status.hpp"
 #include "rowfold/student_t.hpp"

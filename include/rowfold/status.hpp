@@ -17,7 +17,10 @@ enum class Status : std::uint8_t {
   capacity_full,    ///< a fixed-capacity estimator (BatchQr) has no room left
   invalid_options,  ///< the options given at construction were rejected
   empty,            ///< nothing to solve yet (no sample folded)
-  not_available     ///< the requested quantity cannot be formed (e.g. factor lost definiteness)
+  not_available,    ///< the requested quantity cannot be formed (e.g. factor lost definiteness)
+  buffer_too_small,  ///< snapshot: the caller's buffer cannot hold the image
+  corrupt_image,     ///< restore: truncated image, bad magic or checksum mismatch
+  image_mismatch     ///< restore: valid image of another estimator, Scalar, K, version or options
 };
 
 /// Short, stable, allocation-free name of a status (for logs and reports).
@@ -31,6 +34,9 @@ constexpr const char* nameOf(Status s) noexcept {
     case Status::invalid_options: return "invalid_options";
     case Status::empty: return "empty";
     case Status::not_available: return "not_available";
+    case Status::buffer_too_small: return "buffer_too_small";
+    case Status::corrupt_image: return "corrupt_image";
+    case Status::image_mismatch: return "image_mismatch";
   }
   return "unknown";
 }
