@@ -273,8 +273,8 @@ class EstimatorBase {
   Status crossProducts(Matrix& M, Vector& m, Scalar& syy) const {
     if (count() == 0) return Status::empty;
     if (!derived().factorize(m_work)) return Status::not_available;
-    M.noalias() = m_work.R.transpose() * m_work.R;
-    m.noalias() = m_work.R.transpose() * m_work.z;
+    M.noalias() = m_work.R.transpose().lazyProduct(m_work.R);
+    m.noalias() = m_work.R.transpose().lazyProduct(m_work.z);
     syy = m_work.sst;
     return Status::ok;
   }
@@ -293,7 +293,7 @@ class EstimatorBase {
     const Status s = covariance(C);
     if (s != Status::ok) return s;
     for (Eigen::Index j = 0; j < m_k; ++j) m_work.v1(j) = C(j, j) > Scalar(0) ? Scalar(1) / std::sqrt(C(j, j)) : Scalar(0);
-    C = m_work.v1.asDiagonal() * C * m_work.v1.asDiagonal();
+    for (Eigen::Index j = 0; j < m_k; ++j) C.col(j) = C.col(j).cwiseProduct(m_work.v1) * m_work.v1(j);
     return Status::ok;
   }
 

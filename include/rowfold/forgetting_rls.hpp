@@ -174,11 +174,10 @@ class ForgettingRls : public EstimatorBase<ForgettingRls<Scalar_, K_, MaxK_>, Sc
     ws.scratch.template triangularView<Eigen::Upper>().transpose().solveInPlace(ws.v1);
     ws.v2 = ws.v1;
     ws.scratch.template triangularView<Eigen::Upper>().solveInPlace(ws.v2);
-    ws.Rinv.setIdentity(k, k);
-    ws.scratch.template triangularView<Eigen::Upper>().solveInPlace(ws.Rinv);
+    detail::invertUpper(ws.scratch, ws.Rinv);
     const Scalar m2 = ws.v1.squaredNorm();  // m'M^-1 m
     m_theta = ws.v2;
-    m_P.noalias() = ws.Rinv.template triangularView<Eigen::Upper>() * ws.Rinv.transpose();
+    m_P.noalias() = ws.Rinv.lazyProduct(ws.Rinv.transpose());  // Rinv is upper triangular, zeros below
     m_sse = syyWithRow - m2 > Scalar(0) ? syyWithRow - m2 : Scalar(0);  // SSE = Syy - m'M^-1 m
     m_recursive = true;
   }
@@ -215,10 +214,9 @@ class ForgettingRls : public EstimatorBase<ForgettingRls<Scalar_, K_, MaxK_>, Sc
       return false;
     }
     ws.Rinv = ws.scratch.reverse().transpose();  // U
-    ws.R.setIdentity(k, k);
-    ws.Rinv.template triangularView<Eigen::Upper>().solveInPlace(ws.R);
+    detail::invertUpper(ws.Rinv, ws.R);
     ws.b = m_theta;
-    ws.z.noalias() = ws.R.template triangularView<Eigen::Upper>() * ws.b;
+    ws.z.noalias() = ws.R.lazyProduct(ws.b);  // R is upper triangular, zeros below
     ws.rho = std::sqrt(m_sse > Scalar(0) ? m_sse : Scalar(0));
     ws.rank = k;
     this->recoverIntercept(ws);

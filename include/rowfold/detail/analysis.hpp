@@ -40,15 +40,15 @@ Scalar digitsFromRelativeError(Scalar relerr) {
   return d < Scalar(0) ? Scalar(0) : (d > maxDigits<Scalar>() ? maxDigits<Scalar>() : d);
 }
 
-/// ws.Rinv = R^-1 by a triangular solve against the identity. Used for covariances, VIFs and
+/// ws.Rinv = R^-1 by a triangular solve against the identity (coefficient-wise products are
+/// used with it below: `lazyProduct` never allocates, whereas Eigen's blocked products may). Used for covariances, VIFs and
 /// digit estimates only, never to solve for coefficients. Returns false if R is singular.
 template <typename WS>
 bool invertFactor(WS& ws) {
   const Eigen::Index k = ws.R.cols();
   for (Eigen::Index i = 0; i < k; ++i)
     if (!(ws.R(i, i) != 0) || !std::isfinite(ws.R(i, i))) return false;
-  ws.Rinv.setIdentity(k, k);
-  ws.R.template triangularView<Eigen::Upper>().solveInPlace(ws.Rinv);
+  invertUpper(ws.R, ws.Rinv);
   return ws.Rinv.allFinite();
 }
 
@@ -202,14 +202,14 @@ void analyzeSummary(Workspace<Scalar, K, MaxK>& ws, const SampleFacts<Scalar>& f
 
   if (invertible && out.conditioning.rank == k) {
     const Scalar scale = s2 * q;
-    out.covariance.noalias() = ws.Rinv.template triangularView<Eigen::Upper>() * ws.Rinv.transpose();
+    out.covariance.noalias() = ws.Rinv.lazyProduct(ws.Rinv.transpose());  // Rinv upper triangular
     out.covariance *= scale;
     for (Eigen::Index j = 0; j < k; ++j) out.standardErrors(j) = sqrt(out.covariance(j, j));
     if (withIntercept) {
       // Var(b0) = s^2 q (1/W + ||R^-T xbar||^2),  Cov(b0, b) = -Cov(b) xbar  (NUMERICS §4.2)
-      ws.v1.noalias() = ws.Rinv.transpose() * ws.xbar;
+      ws.v1.noalias() = ws.Rinv.transpose().lazyProduct(ws.xbar);
       out.interceptStandardError = sqrt(scale * (Scalar(1) / ws.weight + ws.v1.squaredNorm()));
-      out.interceptCovariance.noalias() = -(out.covariance * ws.xbar);
+      out.interceptCovariance.noalias() = -(out.covariance.lazyProduct(ws.xbar));
     } else {
       out.interceptStandardError = Scalar(0);
       out.interceptCovariance.setZero();

@@ -101,6 +101,19 @@ typename DT::Scalar inverseNorm1Estimate(const Eigen::MatrixBase<DT>& T, Vector&
   return est > alt ? est : alt;
 }
 
+/// Inv = T^-1 for a nonsingular upper-triangular T, one column at a time (column j of the inverse
+/// solves the leading (j+1) x (j+1) system against e_j). Vector solves only: no blocked kernel,
+/// no allocation for any size. Zeros below the diagonal.
+template <typename DT, typename DI>
+void invertUpper(const Eigen::MatrixBase<DT>& T, Eigen::MatrixBase<DI>& Inv) {
+  const Eigen::Index n = T.cols();
+  Inv.setZero();
+  for (Eigen::Index j = 0; j < n; ++j) {
+    Inv(j, j) = typename DT::Scalar(1);
+    T.topLeftCorner(j + 1, j + 1).template triangularView<Eigen::Upper>().solveInPlace(Inv.col(j).head(j + 1));
+  }
+}
+
 /// 1-norm of an upper-triangular matrix (largest column sum).
 template <typename DT>
 typename DT::Scalar upperNorm1(const Eigen::MatrixBase<DT>& T) {
