@@ -85,7 +85,7 @@ const Thresholds kDouble[] = {
     {14, 14, 14, 14},       // NoInt1
     {14, 14, 14, 14},       // NoInt2
     {7.3, 6.8, 0, 0},       // Filip (NE/RLS: flagged, see below)
-    {14, 12, 11.5, 12.5},   // Longley
+    {14, 12, 11.5, 11},     // Longley
     {13.5, 9, 7.3, 9.4},    // Wampler1
     {13, 12.5, 9.3, 12.5},  // Wampler2
     {13, 9, 6.3, 5.6},      // Wampler3
