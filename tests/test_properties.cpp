@@ -1,0 +1,114 @@
+// Randomized (seeded) invariants of least squares, across every estimator (double, dynamic K):
+//  - permuting the samples does not change the fit (lambda = 1) beyond rounding;
+//  - scaling a regressor column by s scales its coefficient by 1/s and leaves the rest;
+//  - shifting a regressor by a constant changes only the intercept (centering is exact);
+//  - a sample with zero weight changes nothing.
+// These are identities of the least-squares problem itself (Björck 1996 §1.1), checked to a
+// tolerance of a few hundred ulps times the estimator's own condition report.
+#include <doctest/doctest.h>
+
+#include <algorithm>
+#include <numeric>
+#include <random>
+#include <vector>
+
+#include "rowfold/rowfold.hpp"
+#include "support/doctest_rowfold.hpp"
+
+namespace {
+
+using rowfold::Status;
+using Mat = Eigen::MatrixXd;
+using Vec = Eigen::VectorXd;
+
+template <template <typename, int, int> class E>
+struct Est {
+  using Type = E<double, Eigen::Dynamic, Eigen::Dynamic>;
+  static Type make(Eigen::Index k) { return Type(k, typename Type::Options{}); }
+};
+template <typename S, int K, int M>
+using Batch = rowfold::BatchQr<S, K, Eigen::Dynamic, M>;
+
+struct Problem {
+  Mat X;
+  Vec y;
+};
+
+Problem randomProblem(std::mt19937_64& rng, Eigen::Index n, Eigen::Index k) {
+  std::normal_distribution<double> g(0, 1);
+  Problem p{Mat(n, k), Vec(n)};
+  for (Eigen::Index i = 0; i < n; ++i) {
+    for (Eigen::Index j = 0; j < k; ++j) p.X(i, j) = 3.0 * double(j + 1) + g(rng) * double(j + 1);
+    p.y(i) = 1.0 + p.X.row(i).sum() * 0.5 + g(rng);
+  }
+  return p;
+}
+
+template <typename E>
+rowfold::Solution<double, Eigen::Dynamic, Eigen::Dynamic> fit(const Mat& X, const Vec& y, double* cond = nullptr) {
+  auto est = E::make(X.cols());
+  for (Eigen::Index i = 0; i < X.rows(); ++i) REQUIRE(est.add(Vec(X.row(i).transpose()), y(i)) == Status::ok);
+  if (cond != nullptr) *cond = est.conditioning().scaledCondition;
+  return est.solve();
+}
+
+template <typename E>
+void properties(std::uint64_t seed) {
+  std::mt19937_64 rng(seed);
+  for (int trial = 0; trial < 20; ++trial) {
+    const Eigen::Index k = 1 + Eigen::Index(rng() % 6);
+    const Eigen::Index n = k + 5 + Eigen::Index(rng() % 60);
+    const Problem p = randomProblem(rng, n, k);
+    double kappa = 1;
+    const auto base = fit<E>(p.X, p.y, &kappa);
+    const double tol = 500 * 2.2e-16 * kappa * kappa;  // covers the squaring estimators too
+    const double scale = base.coefficients.cwiseAbs().maxCoeff() + std::abs(base.intercept);
+
+    // permutation
+    std::vector<Eigen::Index> order(static_cast<std::size_t>(n));
+    std::iota(order.begin(), order.end(), Eigen::Index(0));
+    std::shuffle(order.begin(), order.end(), rng);
+    Mat Xp(n, k);
+    Vec yp(n);
+    for (Eigen::Index i = 0; i < n; ++i) {
+      Xp.row(i) = p.X.row(order[std::size_t(i)]);
+      yp(i) = p.y(order[std::size_t(i)]);
+    }
+    const auto perm = fit<E>(Xp, yp);
+    CHECK((perm.coefficients - base.coefficients).cwiseAbs().maxCoeff() <= tol * scale);
+    CHECK(std::abs(perm.intercept - base.intercept) <= tol * scale * 10);
+
+    // column scaling by a power of two is exact in floating point except for rounding order
+    const Eigen::Index j = Eigen::Index(rng() % std::uint64_t(k));
+    const double s = 8.0;
+    Mat Xs = p.X;
+    Xs.col(j) *= s;
+    const auto scaled = fit<E>(Xs, p.y);
+    CHECK(scaled.coefficients(j) * s == doctest::Approx(base.coefficients(j)).epsilon(tol * 10 + 1e-12));
+    CHECK(std::abs(scaled.intercept - base.intercept) <= tol * scale * 10);
+
+    // shift of a regressor: slopes unchanged, intercept moves by -shift * b_j
+    Mat Xt = p.X;
+    Xt.col(j).array() += 100.0;
+    const auto shifted = fit<E>(Xt, p.y);
+    CHECK((shifted.coefficients - base.coefficients).cwiseAbs().maxCoeff() <= tol * scale * 10);
+    CHECK(shifted.intercept == doctest::Approx(base.intercept - 100.0 * base.coefficients(j)).epsilon(1e-8));
+
+    // zero weight
+    auto est = E::make(k);
+    for (Eigen::Index i = 0; i < n; ++i) {
+      REQUIRE(est.add(Vec(p.X.row(i).transpose()), p.y(i)) == Status::ok);
+      if (i == n / 2) REQUIRE(est.add(Vec(Vec::Constant(k, 1e6)), -1e6, 0.0) == Status::ok);
+    }
+    const auto zw = est.solve();
+    CHECK(zw.coefficients == base.coefficients);
+    CHECK(zw.intercept == base.intercept);
+  }
+}
+
+}  // namespace
+
+TEST_CASE("least-squares invariants: BatchQr") { properties<Est<Batch>>(11); }
+TEST_CASE("least-squares invariants: GivensQr") { properties<Est<rowfold::GivensQr>>(12); }
+TEST_CASE("least-squares invariants: NormalEquations") { properties<Est<rowfold::NormalEquations>>(13); }
+TEST_CASE("least-squares invariants: ForgettingRls") { properties<Est<rowfold::ForgettingRls>>(14); }
