@@ -112,3 +112,27 @@ TEST_CASE("least-squares invariants: BatchQr") { properties<Est<Batch>>(11); }
 TEST_CASE("least-squares invariants: GivensQr") { properties<Est<rowfold::GivensQr>>(12); }
 TEST_CASE("least-squares invariants: NormalEquations") { properties<Est<rowfold::NormalEquations>>(13); }
 TEST_CASE("least-squares invariants: ForgettingRls") { properties<Est<rowfold::ForgettingRls>>(14); }
+
+TEST_CASE("regression (found by fuzz_estimators): overflowing cross-products are reported, never silent NaN") {
+  // Float inputs near 1e20: their squares overflow float, so a cross-product state becomes
+  // non-finite. GivensQr (scaled rotations) survives; the others must say so.
+  rowfold::NormalEquations<float, 2> ne;
+  rowfold::ForgettingRls<float, 2> rls;
+  rowfold::GivensQr<float, 2> gq;
+  const float big = 3e20f;
+  const float xs[][2] = {{big, 1}, {-big, 2}, {big / 2, -1}, {1, 5}, {-big / 3, 0}};
+  for (int i = 0; i < 5; ++i) {
+    const Eigen::Vector2f x(xs[i][0], xs[i][1]);
+    REQUIRE(ne.add(x, float(i)) == Status::ok);
+    REQUIRE(rls.add(x, float(i)) == Status::ok);
+    REQUIRE(gq.add(x, float(i)) == Status::ok);
+  }
+  for (const auto& s : {ne.solve(), rls.solve()}) {
+    CHECK(s.coefficients.allFinite());
+    CHECK(std::isfinite(s.intercept));
+    if (s.status != Status::ok) CHECK(s.flags.has(rowfold::Flag::near_singular));
+  }
+  const auto g = gq.solve();
+  CHECK(g.status == Status::ok);
+  CHECK(g.coefficients.allFinite());
+}

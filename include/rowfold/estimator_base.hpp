@@ -135,13 +135,12 @@ class EstimatorBase {
       out.status = Status::empty;
       return out.status;
     }
-    if (!derived().factorize(m_work)) return unavailable(out);
+    if (!factorizeChecked()) return unavailable(out);
     out.coefficients = m_work.b;
     out.intercept = m_work.intercept;
     out.rank = m_work.rank;
     out.flags = m_work.flags;
-    finishSolution(out);
-    return out.status;
+    return finishChecked(out);
   }
 
   /// Full report at confidence `level` (e.g. 0.95).
@@ -157,7 +156,7 @@ class EstimatorBase {
       out.status = Status::empty;
       return out.status;
     }
-    if (!derived().factorize(m_work)) {
+    if (!factorizeChecked()) {
       out.status = Status::not_available;
       out.flags = m_work.flags;
       return out.status;
@@ -177,7 +176,7 @@ class EstimatorBase {
       out.status = Status::empty;
       return out.status;
     }
-    if (!derived().factorize(m_work)) {
+    if (!factorizeChecked()) {
       out.status = Status::not_available;
       out.flags = m_work.flags;
       return out.status;
@@ -187,11 +186,12 @@ class EstimatorBase {
     return out.status;
   }
 
-  /// Point prediction b0 + x0'b.
+  /// Point prediction b0 + x0'b. Quiet NaN when there is no fit to predict from (empty, wrong
+  /// size, or no usable factor); `predictionInterval` says which, with a Status.
   template <typename XD>
   Scalar predict(const Eigen::MatrixBase<XD>& x0) const {
     SolutionType& s = m_solution;
-    derived().solveInto(s);
+    if (x0.size() != m_k || derived().solveInto(s) != Status::ok) return std::numeric_limits<Scalar>::quiet_NaN();
     return s.intercept + x0.dot(s.coefficients);
   }
 
@@ -204,7 +204,7 @@ class EstimatorBase {
       return out;
     }
     if (count() == 0) return out;
-    if (!derived().factorize(m_work)) {
+    if (!factorizeChecked()) {
       out.status = Status::not_available;
       return out;
     }
@@ -272,7 +272,7 @@ class EstimatorBase {
   /// of the regressors and with y, unnormalized). Divide by W for covariances.
   Status crossProducts(Matrix& M, Vector& m, Scalar& syy) const {
     if (count() == 0) return Status::empty;
-    if (!derived().factorize(m_work)) return Status::not_available;
+    if (!factorizeChecked()) return Status::not_available;
     M.noalias() = m_work.R.transpose().lazyProduct(m_work.R);
     m.noalias() = m_work.R.transpose().lazyProduct(m_work.z);
     syy = m_work.sst;
@@ -342,6 +342,29 @@ class EstimatorBase {
     out.rank = 0;
     out.flags = m_work.flags;
     out.status = Status::not_available;
+    return out.status;
+  }
+
+  /// Runs the estimator's factorization and refuses a non-finite result (e.g. a cross-product
+  /// state that overflowed on huge inputs): then `near_singular` is set and callers report
+  /// `not_available` instead of returning NaN.
+  bool factorizeChecked() const {
+    if (!derived().factorize(m_work)) return false;
+    const bool finite = m_work.b.allFinite() && std::isfinite(m_work.intercept) && m_work.R.allFinite() &&
+                        m_work.z.allFinite() && std::isfinite(m_work.rho);
+    if (!finite) m_work.flags.set(Flag::near_singular);
+    return finite;
+  }
+
+  /// For estimators whose fast solve bypasses factorize: a non-finite answer becomes
+  /// `not_available` with `near_singular`, never a silent NaN.
+  Status finishChecked(SolutionType& out) const {
+    if (!out.coefficients.allFinite() || !std::isfinite(out.intercept)) {
+      m_work.flags = out.flags;
+      m_work.flags.set(Flag::near_singular);
+      return unavailable(out);
+    }
+    finishSolution(out);
     return out.status;
   }
 

@@ -90,8 +90,7 @@ class ForgettingRls : public EstimatorBase<ForgettingRls<Scalar_, K_, MaxK_>, Sc
     out.rank = this->regressors();
     const auto& c = this->centering();
     out.intercept = this->interceptMode() == Intercept::fit ? c.yMean() - c.xMean().dot(m_theta) : Scalar(0);
-    this->finishSolution(out);
-    return out.status;
+    return this->finishChecked(out);
   }
 
  private:

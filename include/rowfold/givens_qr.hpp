@@ -68,8 +68,7 @@ class GivensQr : public EstimatorBase<GivensQr<Scalar_, K_, MaxK_>, Scalar_, K_,
     const auto& c = this->centering();
     out.intercept =
         this->interceptMode() == Intercept::fit ? c.yMean() - c.xMean().dot(out.coefficients) : Scalar(0);
-    this->finishSolution(out);
-    return out.status;
+    return this->finishChecked(out);
   }
 
  private:

@@ -1,0 +1,88 @@
+// libFuzzer target: arbitrary byte streams drive every estimator (float and double, fixed K = 3,
+// and a dynamic K): options, samples, weights and queries come from the input. Asserts: no crash
+// or undefined behaviour (run under ASan/UBSan), a refused sample leaves the state bit-identical,
+// and solve() never returns non-finite coefficients without a flag or status saying why.
+#include <cstddef>
+#include <cstdint>
+#include <cstdlib>
+#include <cstring>
+
+#include "rowfold/rowfold.hpp"
+
+namespace {
+
+struct Input {
+  const std::uint8_t* p;
+  std::size_t n;
+  template <typename T>
+  bool take(T& v) {
+    if (n < sizeof(T)) return false;
+    std::memcpy(&v, p, sizeof(T));
+    p += sizeof(T);
+    n -= sizeof(T);
+    return true;
+  }
+};
+
+void require(bool ok) {
+  if (!ok) std::abort();
+}
+
+template <typename Est>
+void exercise(Est& est, Input& in) {
+  using Scalar = typename Est::Scalar;
+  Eigen::Matrix<Scalar, 3, 1> x;
+  std::uint8_t op = 0;
+  while (in.take(op)) {
+    Scalar y = 0, w = 1;
+    if (!in.take(x(0)) || !in.take(x(1)) || !in.take(x(2)) || !in.take(y)) return;
+    if (op & 1) {
+      if (!in.take(w)) return;
+    }
+    unsigned char before[sizeof(Est)];
+    std::memcpy(before, static_cast<const void*>(&est), sizeof(Est));
+    const rowfold::Status s = est.add(x, y, w);
+    if (s != rowfold::Status::ok) require(std::memcmp(before, static_cast<const void*>(&est), sizeof(Est)) == 0);
+    if ((op & 0x30) == 0x30) {
+      const auto sol = est.solve();
+      if (sol.status == rowfold::Status::ok && !sol.flags.any()) require(sol.coefficients.allFinite());
+      (void)est.summarize(Scalar(0.95));
+      (void)est.conditioning();
+      (void)est.predictionInterval(x, Scalar(0.9));
+    }
+    if ((op & 0xC0) == 0xC0) est.reset();
+  }
+}
+
+template <template <typename, int, int> class E, typename Scalar>
+void run(const std::uint8_t* data, std::size_t size) {
+  Input in{data, size};
+  std::uint8_t cfg = 0;
+  double lambda = 1;
+  if (!in.take(cfg) || !in.take(lambda)) return;
+  typename E<Scalar, 3, 3>::Options o;
+  o.forgetting = lambda;
+  o.intercept = (cfg & 1) ? rowfold::Intercept::none : rowfold::Intercept::fit;
+  E<Scalar, 3, 3> est(o);
+  exercise(est, in);
+}
+
+template <typename S, int K, int M>
+using Batch = rowfold::BatchQr<S, K, 64, M>;
+
+}  // namespace
+
+extern "C" int LLVMFuzzerTestOneInput(const std::uint8_t* data, std::size_t size) {
+  if (size < 1) return 0;
+  switch (data[0] % 8) {
+    case 0: run<Batch, double>(data + 1, size - 1); break;
+    case 1: run<rowfold::GivensQr, double>(data + 1, size - 1); break;
+    case 2: run<rowfold::NormalEquations, double>(data + 1, size - 1); break;
+    case 3: run<rowfold::ForgettingRls, double>(data + 1, size - 1); break;
+    case 4: run<Batch, float>(data + 1, size - 1); break;
+    case 5: run<rowfold::GivensQr, float>(data + 1, size - 1); break;
+    case 6: run<rowfold::NormalEquations, float>(data + 1, size - 1); break;
+    default: run<rowfold::ForgettingRls, float>(data + 1, size - 1); break;
+  }
+  return 0;
+}
