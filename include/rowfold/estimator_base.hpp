@@ -396,7 +396,8 @@ class EstimatorBase {
 
   void writeHeader(unsigned char* h, std::size_t payload) const {
     std::memset(h, 0, detail::kSnapshotHeaderSize);
-    std::memcpy(h, "RFLD", 4);
+    const unsigned char magic[4] = {'R', 'F', 'L', 'D'};  // not a string: no terminator in the image
+    std::memcpy(h, magic, sizeof magic);
     detail::putField(h + 4, kSnapshotVersion);
     h[6] = static_cast<unsigned char>(sizeof(Scalar));
     h[7] = static_cast<unsigned char>(std::numeric_limits<Scalar>::digits);
