@@ -7,6 +7,7 @@
 #include <limits>
 #include <type_traits>
 
+#include "rowfold/detail/pivoted_qr.hpp"
 #include "rowfold/detail/twofold.hpp"
 #include "rowfold/estimator_base.hpp"
 
@@ -145,12 +146,10 @@ class BatchQr : public EstimatorBase<BatchQr<Scalar_, K_, Capacity_, MaxK_>, Sca
   }
 
   void applyQt(Eigen::Index n, Eigen::Index p, Column& v) const {
-    for (Eigen::Index j = 0; j < p; ++j)
-      v.segment(j, n - j).applyHouseholderOnTheLeft(m_design.col(j).segment(j + 1, n - j - 1), m_tau(j), m_tmp.data());
+    for (Eigen::Index j = 0; j < p; ++j) detail::applyReflector(m_design, j, n, m_tau(j), v);
   }
   void applyQ(Eigen::Index n, Eigen::Index p, Column& v) const {
-    for (Eigen::Index j = p - 1; j >= 0; --j)
-      v.segment(j, n - j).applyHouseholderOnTheLeft(m_design.col(j).segment(j + 1, n - j - 1), m_tau(j), m_tmp.data());
+    for (Eigen::Index j = p - 1; j >= 0; --j) detail::applyReflector(m_design, j, n, m_tau(j), v);
   }
 
   bool factorize(WorkspaceType& ws) const {
@@ -186,12 +185,11 @@ class BatchQr : public EstimatorBase<BatchQr<Scalar_, K_, Capacity_, MaxK_>, Sca
       m_qtb(i) = rhsEntry(i, m_f(i), ws).value();
     }
     for (Eigen::Index j = 0; j < p && j < n; ++j) {
-      Scalar beta;
-      m_design.col(j).segment(j, n - j).makeHouseholderInPlace(m_tau(j), beta);
-      m_design(j, j) = beta;
-      if (j + 1 < p)
-        m_design.block(j, j + 1, n - j, p - j - 1)
-            .applyHouseholderOnTheLeft(m_design.col(j).segment(j + 1, n - j - 1), m_tau(j), m_tmp.data());
+      m_tau(j) = detail::makeReflector(m_design, j, n, m_design.col(j).segment(j, n - j).squaredNorm());
+      for (Eigen::Index c = j + 1; c < p; ++c) {
+        auto col = m_design.col(c);
+        detail::applyReflector(m_design, j, n, m_tau(j), col);
+      }
     }
     const Eigen::Index rows = n < p ? n : p;  // fewer rows than coefficients: R has n rows
     applyQt(n, rows, m_qtb);
@@ -208,9 +206,9 @@ class BatchQr : public EstimatorBase<BatchQr<Scalar_, K_, Capacity_, MaxK_>, Sca
     if (!fullRank) {
       // Basic solution of the slopes from the centered factor; intercept from the first row.
       ws.rank = detail::solveUpperWithRank(ws.R, ws.z, ws.b, ws.scratch, ws.scale, ws.pivoted);
-      m_sol.setZero(p);
-      m_solLo.setZero(p);
-      m_sol.tail(k) = ws.b;
+      m_sol.setZero();
+      m_solLo.setZero();
+      m_sol.segment(m_offset, k) = ws.b;
       if (m_offset == 1 && m_design(0, 0) != Scalar(0))
         m_sol(0) = (m_qtb(0) - m_design.row(0).segment(1, k).dot(ws.b)) / m_design(0, 0);
     } else {
@@ -225,15 +223,15 @@ class BatchQr : public EstimatorBase<BatchQr<Scalar_, K_, Capacity_, MaxK_>, Sca
   /// is the plain QR solution).
   void refine(Eigen::Index n, Eigen::Index p, WorkspaceType& ws) const {
     const Scalar eps = std::numeric_limits<Scalar>::epsilon();
-    const auto R = m_design.topLeftCorner(p, p).template triangularView<Eigen::Upper>();
-    m_sol.setZero(p);
-    m_solLo.setZero(p);
+    const auto R = m_design.topLeftCorner(p, p);  // upper triangle holds the factor
+    m_sol.setZero();
+    m_solLo.setZero();
     m_r.head(n).setZero();
     Scalar lastNorm = std::numeric_limits<Scalar>::infinity();
     const int maxSweeps = m_options.refinementSteps + 1;
     for (int sweep = 0; sweep < maxSweeps; ++sweep) {
       // f = b - r - A x ;  g = -A' r   (twofold, raw data)
-      m_dx.setZero(p);
+      m_dx.head(p).setZero();
       for (Eigen::Index i = 0; i < n; ++i) {
         const Scalar om = m_f(i);
         detail::Twofold<Scalar> fi = rhsEntry(i, om, ws);
@@ -251,11 +249,11 @@ class BatchQr : public EstimatorBase<BatchQr<Scalar_, K_, Capacity_, MaxK_>, Sca
         m_tmp(c) = gc.value();
       }
       // Correction: Q'f = [f1; f2], d1 = R^-T g, dx = R^-1 (f1 - d1), dr = Q [d1; f2].
-      m_dx = m_tmp.head(p);
-      R.transpose().solveInPlace(m_dx);  // d1
+      m_dx.head(p) = m_tmp.head(p);
+      detail::forwardSubstituteTransposed(R, m_dx);  // d1 (first p entries)
       applyQt(n, p, m_qtb);
-      m_tmp.head(p) = m_qtb.head(p) - m_dx;
-      R.solveInPlace(m_tmp.head(p));
+      m_tmp.head(p) = m_qtb.head(p) - m_dx.head(p);
+      detail::backSubstitute(R, m_tmp, p);
       for (Eigen::Index c = 0; c < p; ++c) {  // x += dx, kept as an unevaluated twofold sum
         Scalar hi, lo;
         detail::twoSum(m_sol(c), m_tmp(c), hi, lo);
@@ -264,7 +262,7 @@ class BatchQr : public EstimatorBase<BatchQr<Scalar_, K_, Capacity_, MaxK_>, Sca
         m_solLo(c) = lo - (m_sol(c) - hi);
       }
       const Scalar stepNorm = m_tmp.head(p).template lpNorm<Eigen::Infinity>();
-      m_qtb.head(p) = m_dx;
+      m_qtb.head(p) = m_dx.head(p);
       applyQ(n, p, m_qtb);
       m_r.head(n) += m_qtb.head(n);
       ++m_sweeps;
@@ -277,7 +275,7 @@ class BatchQr : public EstimatorBase<BatchQr<Scalar_, K_, Capacity_, MaxK_>, Sca
 
   /// Slopes, intercept (twofold), residual norm and SST from the final solution.
   void finishFromSolution(Eigen::Index n, Eigen::Index k, WorkspaceType& ws) const {
-    ws.b = m_sol.tail(k) + m_solLo.tail(k);
+    ws.b = m_sol.segment(m_offset, k) + m_solLo.segment(m_offset, k);
     if (m_offset == 1) {
       detail::Twofold<Scalar> b0;
       b0.add(ws.ybar);

@@ -170,9 +170,9 @@ class ForgettingRls : public EstimatorBase<ForgettingRls<Scalar_, K_, MaxK_>, Sc
     if (zeroed != 0 || detail::hasDependentColumn(ws.scratch)) return;
     // theta = M^-1 m by two triangular solves; P = R^-1 R^-T (the covariance form needs P itself).
     ws.v1 = m_theta;
-    ws.scratch.template triangularView<Eigen::Upper>().transpose().solveInPlace(ws.v1);
+    detail::forwardSubstituteTransposed(ws.scratch, ws.v1);
     ws.v2 = ws.v1;
-    ws.scratch.template triangularView<Eigen::Upper>().solveInPlace(ws.v2);
+    detail::backSubstitute(ws.scratch, ws.v2, k);
     detail::invertUpper(ws.scratch, ws.Rinv);
     const Scalar m2 = ws.v1.squaredNorm();  // m'M^-1 m
     m_theta = ws.v2;

@@ -76,9 +76,9 @@ bool analyzeConditioning(Workspace<Scalar, K, MaxK>& ws, const SampleFacts<Scala
 
   // Numerical rank: column-pivoted QR of R D^-1 (Businger & Golub 1965).
   if (hasDependentColumn(ws.R)) {
-    ws.pivoted.setThreshold(dependenceTolerance<Scalar>(k));
-    ws.pivoted.compute(ws.scratch);
-    out.rank = ws.pivoted.rank();
+    ws.Rinv = ws.scratch;  // pivoting works in place; Rinv is recomputed below
+    out.rank = pivotedQrInPlace(ws.Rinv, ws.pivoted.rhs, ws.pivoted.perm, ws.pivoted.tau, ws.pivoted.norms,
+                                dependenceTolerance<Scalar>(k));
   } else {
     out.rank = k;
   }
@@ -258,7 +258,7 @@ void analyzePrediction(Workspace<Scalar, K, MaxK>& ws, const SampleFacts<Scalar>
     out.flags.set(Flag::rank_deficient);
     out.leverage = nan;
   } else {
-    ws.R.template triangularView<Eigen::Upper>().transpose().solveInPlace(ws.v1);
+    forwardSubstituteTransposed(ws.R, ws.v1);
     out.leverage = q * ((withIntercept ? Scalar(1) / ws.weight : Scalar(0)) + ws.v1.squaredNorm());
   }
   const Scalar t = dof > Scalar(0) ? studentTQuantile((Scalar(1) + level) / Scalar(2), dof) : nan;

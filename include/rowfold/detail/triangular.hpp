@@ -4,9 +4,10 @@
 #pragma once
 
 #include <Eigen/Core>
-#include <Eigen/QR>
 #include <cmath>
 #include <limits>
+
+#include "rowfold/detail/pivoted_qr.hpp"
 
 namespace rowfold::detail {
 
@@ -40,27 +41,30 @@ bool hasDependentColumn(const Eigen::MatrixBase<DR>& R) {
 /// Solves R b = z for upper-triangular R. When a column is (numerically) dependent, falls back
 /// to column-pivoted Householder QR (Businger & Golub 1965) of the column-equilibrated R and
 /// returns the basic solution: dependent coefficients are zero. Returns the numerical rank.
-template <typename DR, typename DZ, typename Vector, typename Matrix, typename PivQr>
+template <typename DR, typename DZ, typename Vector, typename Matrix, typename PivotWork>
 Eigen::Index solveUpperWithRank(const Eigen::MatrixBase<DR>& R, const Eigen::MatrixBase<DZ>& z, Vector& b,
-                                Matrix& scratch, Vector& scale, PivQr& pivoted) {
+                                Matrix& scratch, Vector& scale, PivotWork& pw) {
   using Scalar = typename DR::Scalar;
   const Eigen::Index k = R.cols();
   if (!hasDependentColumn(R)) {
-    b = R.template triangularView<Eigen::Upper>().solve(z);
+    b = z;
+    backSubstitute(R, b, k);
     return k;
   }
   columnNorms(R, scale);
   for (Eigen::Index j = 0; j < k; ++j) scale(j) = scale(j) > Scalar(0) ? scale(j) : Scalar(1);
   scratch = R.template triangularView<Eigen::Upper>();
   for (Eigen::Index j = 0; j < k; ++j) scratch.col(j) /= scale(j);
-  pivoted.setThreshold(dependenceTolerance<Scalar>(k));
-  pivoted.compute(scratch);
-  b = pivoted.solve(z);
-  for (Eigen::Index j = 0; j < k; ++j) {
-    b(j) /= scale(j);
+  pw.rhs = z;
+  const Eigen::Index rank = pivotedQrInPlace(scratch, pw.rhs, pw.perm, pw.tau, pw.norms, dependenceTolerance<Scalar>(k));
+  backSubstitute(scratch, pw.rhs, rank);
+  b.setZero();
+  for (Eigen::Index i = 0; i < rank; ++i) {
+    const Eigen::Index j = pw.perm(i);
+    b(j) = pw.rhs(i) / scale(j);
     if (!std::isfinite(b(j))) b(j) = Scalar(0);
   }
-  return pivoted.rank();
+  return rank;
 }
 
 /// Hager (1984, SIAM J. Sci. Stat. Comput. 5(2):311-316) 1-norm estimate of T^{-1} for an
@@ -73,17 +77,17 @@ typename DT::Scalar inverseNorm1Estimate(const Eigen::MatrixBase<DT>& T, Vector&
   const Eigen::Index n = T.cols();
   for (Eigen::Index i = 0; i < n; ++i)
     if (!(T(i, i) != Scalar(0)) || !std::isfinite(T(i, i))) return std::numeric_limits<Scalar>::infinity();
-  const auto U = T.template triangularView<Eigen::Upper>();
   x.setConstant(Scalar(1) / Scalar(n));
   Scalar est = 0;
   Eigen::Index lastJ = -1;
   for (int iter = 0; iter < 5; ++iter) {
-    y = U.solve(x);
+    y = x;
+    backSubstitute(T, y, n);
     const Scalar norm = y.template lpNorm<1>();
     if (iter > 0 && norm <= est) break;
     est = norm;
     for (Eigen::Index i = 0; i < n; ++i) w(i) = y(i) >= Scalar(0) ? Scalar(1) : Scalar(-1);
-    w = U.transpose().solve(w);
+    forwardSubstituteTransposed(T, w);
     Eigen::Index j = 0;
     const Scalar zmax = w.cwiseAbs().maxCoeff(&j);
     if (iter > 0 && (zmax <= w.dot(x) || j == lastJ)) break;
@@ -96,7 +100,8 @@ typename DT::Scalar inverseNorm1Estimate(const Eigen::MatrixBase<DT>& T, Vector&
     const Scalar sign = (i % 2 == 0) ? Scalar(1) : Scalar(-1);
     x(i) = sign * (Scalar(1) + (n > 1 ? Scalar(i) / Scalar(n - 1) : Scalar(0)));
   }
-  y = U.solve(x);
+  y = x;
+  backSubstitute(T, y, n);
   const Scalar alt = Scalar(2) * y.template lpNorm<1>() / Scalar(3 * n);
   return est > alt ? est : alt;
 }
@@ -110,7 +115,8 @@ void invertUpper(const Eigen::MatrixBase<DT>& T, Eigen::MatrixBase<DI>& Inv) {
   Inv.setZero();
   for (Eigen::Index j = 0; j < n; ++j) {
     Inv(j, j) = typename DT::Scalar(1);
-    T.topLeftCorner(j + 1, j + 1).template triangularView<Eigen::Upper>().solveInPlace(Inv.col(j).head(j + 1));
+    auto col = Inv.col(j);
+    backSubstitute(T, col, j + 1);
   }
 }
 

@@ -3,7 +3,7 @@
 /// conditioning and predict never allocate (also for Eigen::Dynamic K).
 #pragma once
 
-#include <Eigen/QR>
+#include <Eigen/Core>
 
 #include "rowfold/detail/dims.hpp"
 #include "rowfold/status.hpp"
@@ -17,19 +17,33 @@ enum class ErrorModel : std::uint8_t {
   online_gram   ///< cross-product (normal-equation or P-form) state: squares the condition number
 };
 
+/// Scratch of the pivoted QR (detail/pivoted_qr.hpp).
+template <typename Scalar, int K, int MaxK>
+struct PivotWork {
+  using D = Dims<Scalar, K, MaxK>;
+  typename D::Vector tau, norms, rhs;
+  Eigen::Matrix<Eigen::Index, K, 1, Eigen::ColMajor, MaxK, 1> perm;
+  explicit PivotWork(Eigen::Index k) : tau(k), norms(k), rhs(k), perm(k) {
+    tau.setZero();
+    norms.setZero();
+    rhs.setZero();
+    perm.setZero();
+  }
+};
+
 template <typename Scalar, int K, int MaxK>
 struct Workspace {
   using D = Dims<Scalar, K, MaxK>;
   typename D::Matrix R, Rinv, scratch;
   typename D::Matrix1 aug, aug2;
   typename D::Vector z, b, xbar, v1, v2, v3, v4, scale;
-  Eigen::ColPivHouseholderQR<typename D::Matrix> pivoted;
+  PivotWork<Scalar, K, MaxK> pivoted;
   Scalar rho = 0, sst = 0, intercept = 0, ybar = 0, weight = 0;
   Eigen::Index rank = 0;
   Flags flags;
 
-  Workspace() { resize(D::K == Eigen::Dynamic ? 0 : D::K); }
-  explicit Workspace(Eigen::Index k) : pivoted(k, k) { resize(k); }
+  Workspace() : pivoted(D::K == Eigen::Dynamic ? 0 : D::K) { resize(D::K == Eigen::Dynamic ? 0 : D::K); }
+  explicit Workspace(Eigen::Index k) : pivoted(k) { resize(k); }
   void resize(Eigen::Index k) {
     aug.setZero(k + 1, k + 1);
     aug2.setZero(k + 1, k + 1);
