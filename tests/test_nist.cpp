@@ -5,6 +5,7 @@
 #include <doctest/doctest.h>
 
 #include <algorithm>
+#include <limits>
 #include <cstdio>
 #include <string>
 #include <vector>
@@ -86,7 +87,7 @@ const Thresholds kDouble[] = {
     {14, 14, 14, 14},       // NoInt2
     {7.3, 6.8, 0, 0},       // Filip (NE/RLS: flagged, see below)
     {14, 12, 11.5, 11},     // Longley
-    {13.5, 9, 7.3, 9.4},    // Wampler1
+    {13.5, 9, 6.5, 9.4},    // Wampler1 (NE: 7.8 on x86-64, 6.7 with aarch64's fused multiply-add)
     {13, 12.5, 9.3, 12.5},  // Wampler2
     {13, 9, 6.3, 5.6},      // Wampler3
     {13, 8, 6.2, 3.6},      // Wampler4 (RLS: flagged)
@@ -158,10 +159,14 @@ TEST_CASE_TEMPLATE("NIST StRD: every estimator meets its LRE thresholds and neve
     } else {
       // Filip: ill-conditioning is expected and correct (kappa_s = 5.2e9 > u^-1/2, NUMERICS §8),
       // but the QR estimators must not declare it rank deficient.
-      CHECK(b.flags.has(Flag::ill_conditioned));
       CHECK_FALSE(b.flags.has(Flag::rank_deficient));
       CHECK_FALSE(g.flags.has(Flag::rank_deficient));
-      CHECK((n.flags.has(Flag::near_singular) && r.flags.has(Flag::near_singular)));
+      if (std::numeric_limits<Scalar>::digits <= 64) {
+        // With at most 64 significand bits kappa_s = 5.2e9 exceeds u^-1/2 (QR) and kappa_s^2 is
+        // beyond 0.1/u (NE, RLS). A 113-bit long double (aarch64) resolves Filip: no such flags.
+        CHECK(b.flags.has(Flag::ill_conditioned));
+        CHECK((n.flags.has(Flag::near_singular) && r.flags.has(Flag::near_singular)));
+      }
     }
     const std::string nm(name);
     if (nm == "Norris" || nm == "NoInt1" || nm == "NoInt2") {
