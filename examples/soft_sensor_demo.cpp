@@ -116,6 +116,12 @@ const char* sentence(rowfold::Flag f) {
     case rowfold::Flag::lost_definiteness:
       return "the covariance-form state P is no longer positive definite: reset the estimator or use "
              "GivensQr.";
+    case rowfold::Flag::low_excitation:
+      return "recent samples carried almost no new information: in some direction the estimate rests "
+             "on old data.";
+    case rowfold::Flag::windup_guarded:
+      return "the windup guard held forgetting back so the estimator would not blow up during the "
+             "quiet period.";
   }
   return "unknown flag.";
 }

@@ -20,7 +20,10 @@ enum class Status : std::uint8_t {
   not_available,    ///< the requested quantity cannot be formed (e.g. factor lost definiteness)
   buffer_too_small,  ///< snapshot: the caller's buffer cannot hold the image
   corrupt_image,     ///< restore: truncated image, bad magic or checksum mismatch
-  image_mismatch     ///< restore: valid image of another estimator, Scalar, K, version or options
+  image_mismatch,    ///< restore: valid image of another estimator, Scalar, K, version or options
+  outlier,           ///< the outlier gate refused the sample (innovation or leverage too large)
+  not_definite,      ///< removing a sample (downdate) would leave a factor that is not positive definite
+  state_mismatch     ///< merge: the other state has another K, intercept mode or options
 };
 
 /// Short, stable, allocation-free name of a status (for logs and reports).
@@ -37,6 +40,9 @@ constexpr const char* nameOf(Status s) noexcept {
     case Status::buffer_too_small: return "buffer_too_small";
     case Status::corrupt_image: return "corrupt_image";
     case Status::image_mismatch: return "image_mismatch";
+    case Status::outlier: return "outlier";
+    case Status::not_definite: return "not_definite";
+    case Status::state_mismatch: return "state_mismatch";
   }
   return "unknown";
 }
@@ -50,7 +56,10 @@ enum class Flag : std::uint16_t {
   collinear = 1u << 2,         ///< a VIF above the threshold (10 = common practice)
   rank_deficient = 1u << 3,    ///< numerical rank < K; dependent coefficients set to zero
   too_few_samples = 1u << 4,   ///< effective sample size <= number of coefficients
-  lost_definiteness = 1u << 5  ///< a covariance-form state (P) is no longer positive definite
+  lost_definiteness = 1u << 5,  ///< a covariance-form state (P) is no longer positive definite
+  low_excitation = 1u << 6,     ///< recent samples carried (almost) no new information: the
+                                ///< estimate rests on old data in some direction
+  windup_guarded = 1u << 7      ///< the windup guard held forgetting back (or bounded the factor)
 };
 
 /// A set of `Flag`s.
@@ -80,12 +89,15 @@ constexpr const char* nameOf(Flag f) noexcept {
     case Flag::rank_deficient: return "rank_deficient";
     case Flag::too_few_samples: return "too_few_samples";
     case Flag::lost_definiteness: return "lost_definiteness";
+    case Flag::low_excitation: return "low_excitation";
+    case Flag::windup_guarded: return "windup_guarded";
   }
   return "unknown";
 }
 
 /// Every flag, for iteration in reports.
-constexpr Flag kAllFlags[] = {Flag::ill_conditioned, Flag::near_singular,  Flag::collinear,
-                              Flag::rank_deficient,  Flag::too_few_samples, Flag::lost_definiteness};
+constexpr Flag kAllFlags[] = {Flag::ill_conditioned, Flag::near_singular,     Flag::collinear,
+                              Flag::rank_deficient,  Flag::too_few_samples,   Flag::lost_definiteness,
+                              Flag::low_excitation,  Flag::windup_guarded};
 
 }  // namespace rowfold
