@@ -27,16 +27,27 @@ namespace rowfold {
 /// Besides W it keeps the forgetting sums F = sum lambda^age and F2 = sum lambda^(2 age)
 /// (sample weights excluded), which give the effective sample size F^2/F2 used by the
 /// statistics under forgetting (Kish 1965; NUMERICS §7.2). With lambda = 1, F = F2 = n.
+///
+/// **Stability:** the updating form never subtracts large sums of squares (the one-pass
+/// sum(x^2) - n xbar^2 formula loses every digit for data with a large mean, NUMERICS §4.4);
+/// the means carry a relative error of a few u, which the conditioning analysis accounts for.
+///
+/// **Cost:** O(K) per sample, no allocation after construction. Estimators own one Centering
+/// and drive it (scaledRow, then their own fold, then commit); users normally only read it
+/// through EstimatorBase::centering().
 template <typename Scalar, int K, int MaxK = K>
 class Centering {
  public:
-  using Dims = detail::Dims<Scalar, K, MaxK>;
-  using Vector = typename Dims::Vector;
-  using Vector1 = typename Dims::Vector1;
+  using Dims = detail::Dims<Scalar, K, MaxK>;  ///< size arithmetic (internal)
+  using Vector = typename Dims::Vector;  ///< K-vector type
+  using Vector1 = typename Dims::Vector1;  ///< (K+1)-vector type (a scaled row [x, y])
 
+  /// Empty state, fixed K.
   Centering() { reset(); }
+  /// Empty state for `k` regressors (allocates the mean vector for Eigen::Dynamic K).
   explicit Centering(Eigen::Index k) : m_xbar(k) { reset(); }
 
+  /// Back to the empty state (means, sums and count zero). O(K).
   void reset() {
     m_xbar.setZero();
     m_ybar = Scalar(0);
@@ -48,7 +59,9 @@ class Centering {
   }
 
   /// Writes the scaled row c [x - xbar, y - ybar] (or sqrt(w) [x, y]) into `row` (size K+1)
-  /// without changing the state. Returns c.
+  /// without changing the state. Returns c. The first sample of a centered fit gives c = 0
+  /// (one sample has no spread). Preconditions (checked by EstimatorBase, not here): x has
+  /// K finite entries, y finite, w > 0 and finite, 0 < lambda <= 1. O(K).
   template <typename XD>
   Scalar scaledRow(const Eigen::MatrixBase<XD>& x, Scalar y, Scalar w, Scalar lambda, Intercept mode,
                    Vector1& row) const {
@@ -67,7 +80,8 @@ class Centering {
     return c;
   }
 
-  /// Commits the sample to the means and sums (call after the estimator folded `row`).
+  /// Commits the sample to the means and sums (call after the estimator folded `row`); the
+  /// arguments must be those given to scaledRow, and `row` its output. O(K).
   template <typename XD>
   void commit(const Eigen::MatrixBase<XD>& x, Scalar y, Scalar w, Scalar lambda, Intercept mode,
               const Vector1& row) {
@@ -97,7 +111,9 @@ class Centering {
     v.field(self.m_count);
   }
 
+  /// Weighted (and forgotten) mean of x; zero with Intercept::none.
   const Vector& xMean() const { return m_xbar; }
+  /// Weighted (and forgotten) mean of y; zero with Intercept::none.
   Scalar yMean() const { return m_ybar; }
   /// W = sum of forgotten sample weights.
   Scalar weightSum() const { return m_weight; }
@@ -109,6 +125,7 @@ class Centering {
   Scalar forgetSum2() const { return m_forget2; }
   /// Effective number of samples F^2/F2 (= count when lambda = 1).
   Scalar effectiveCount() const { return m_forget2 > Scalar(0) ? m_forget * m_forget / m_forget2 : Scalar(0); }
+  /// Samples committed (zero-weight samples never reach the Centering).
   std::uint64_t count() const { return m_count; }
 
  private:

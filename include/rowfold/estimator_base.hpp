@@ -49,26 +49,45 @@ namespace rowfold {
 /// Threads: the const queries (solve, summarize, conditioning, predict) use scratch storage
 /// inside the object, so one estimator must not be queried from two threads at once; copies
 /// are independent.
+///
+/// **Math written here** (every estimator reduces its state to the factor [R z; 0 rho] of the
+/// centered weighted data, R'R = X~'X~, R b = z, rho^2 = SSE): online centering (West 1979;
+/// Centering), statistics under forgetting (NUMERICS §7.1-7.2, effective sample size after Kish
+/// 1965), conditioning from R (Hager 1984 / Higham 1988 condition estimate, Businger & Golub 1965
+/// pivoted QR for the rank, VIFs, NUMERICS §6), t quantiles (studentTQuantile).
+///
+/// **Stability** is the estimator's: the base only validates, centers and analyses the factor.
+/// QR-type states (BatchQr, GivensQr) are backward stable and their accuracy follows the scaled
+/// condition kappa_s; cross-product states (NormalEquations, ForgettingRls) square it. The
+/// conditioning flags take that into account (Flag, conditioningInto).
+///
+/// **Cost per call** (n = stored rows of BatchQr): `add` O(K) checks + the estimator's update;
+/// `solve` from O(K) (ForgettingRls) and O(K^2) (GivensQr) to O(K^3) (NormalEquations) and
+/// O(n K^2) (BatchQr); `summarize`, `conditioning` add O(K^3); `predictionInterval` adds O(K^2);
+/// `snapshot`/`restore` O(image size).
 template <typename Derived, typename Scalar_, int K_, int MaxK_>
 class EstimatorBase {
  public:
-  using Scalar = Scalar_;
-  static constexpr int K = K_;
-  static constexpr int MaxK = MaxK_;
-  using Dims = detail::Dims<Scalar, K, MaxK>;
-  using Vector = typename Dims::Vector;
-  using Matrix = typename Dims::Matrix;
-  using Vector1 = typename Dims::Vector1;
-  using SolutionType = Solution<Scalar, K, MaxK>;
-  using SummaryType = Summary<Scalar, K, MaxK>;
-  using ConditioningType = Conditioning<Scalar, K, MaxK>;
-  using PredictionType = Prediction<Scalar>;
-  using WorkspaceType = detail::Workspace<Scalar, K, MaxK>;
+  using Scalar = Scalar_;  ///< float, double or long double
+  static constexpr int K = K_;  ///< regressors at compile time, or Eigen::Dynamic
+  static constexpr int MaxK = MaxK_;  ///< compile-time bound on K (inline storage when not Dynamic)
+  using Dims = detail::Dims<Scalar, K, MaxK>;  ///< size arithmetic (internal)
+  using Vector = typename Dims::Vector;  ///< K-vector type
+  using Matrix = typename Dims::Matrix;  ///< K x K matrix type
+  using Vector1 = typename Dims::Vector1;  ///< (K+1)-vector type (a scaled row [x, y])
+  using SolutionType = Solution<Scalar, K, MaxK>;  ///< result of solve
+  using SummaryType = Summary<Scalar, K, MaxK>;  ///< result of summarize
+  using ConditioningType = Conditioning<Scalar, K, MaxK>;  ///< result of conditioning
+  using PredictionType = Prediction<Scalar>;  ///< result of predictionInterval
+  using WorkspaceType = detail::Workspace<Scalar, K, MaxK>;  ///< query scratch (internal)
 
   /// Number of regressors K (excluding the intercept).
   Eigen::Index regressors() const { return m_k; }
-  /// Outcome of option validation at construction; anything but `ok` makes `add` refuse.
+  /// Outcome of option validation at construction: `ok`, `wrong_size` (k <= 0, or k != K for
+  /// a fixed K) or `invalid_options` (see validate(const FitOptions&)); estimators with options of
+  /// their own shadow it. Anything but `ok` makes `add` refuse every sample of positive weight. O(1).
   Status status() const { return m_status; }
+  /// The shared options given at construction.
   const FitOptions& fitOptions() const { return m_fit; }
   /// Accepted samples (weight > 0).
   std::uint64_t count() const { return m_centering.count(); }
@@ -76,13 +95,29 @@ class EstimatorBase {
   Scalar weightSum() const { return m_centering.weightSum(); }
   /// Effective sample size F^2/F2 (= count when lambda = 1).
   Scalar effectiveCount() const { return m_centering.effectiveCount(); }
+  /// The running weighted means and sums (see Centering).
   const Centering<Scalar, K, MaxK>& centering() const { return m_centering; }
 
-  /// Folds one sample with weight 1.
+  /// Folds one sample with weight 1; see add(const Eigen::MatrixBase<XD>&, Scalar, Scalar).
   template <typename XD>
   Status add(const Eigen::MatrixBase<XD>& x, Scalar y) { return add(x, y, Scalar(1)); }
 
   /// Folds one sample (x, y) with weight w >= 0. A zero weight is accepted and changes nothing.
+  ///
+  /// Math: ages the state by lambda and folds the scaled centered row
+  /// c [x - xbar, y - ybar], c = sqrt(w lambda W / (lambda W + w)) (Centering; NUMERICS §4.1-4.2),
+  /// by the estimator's own update (its class comment).
+  ///
+  /// Precondition: x is an Eigen expression of the estimator's Scalar (static_assert).
+  ///
+  /// Returns, checked in this order before anything is written: the construction status if it
+  /// is not `ok`; `wrong_size` (x.size() != K); `negative_weight` (w < 0, NaN or Inf);
+  /// `nonfinite_input` (NaN or Inf in x or y); `ok` for w == 0 (nothing folded);
+  /// `capacity_full` (no room: a full BatchQr, or an estimator whose own options are invalid);
+  /// otherwise `ok`. Raises no flags (queries report them).
+  ///
+  /// Cost: O(K) checks + the estimator's update (BatchQr O(K), NormalEquations ~K^2/2,
+  /// GivensQr ~2K^2 and K+1 square roots, ForgettingRls ~2K^2). Never allocates.
   template <typename XD>
   Status add(const Eigen::MatrixBase<XD>& x, Scalar y, Scalar w) {
     static_assert(std::is_same<typename XD::Scalar, Scalar>::value, "rowfold: x must have the estimator's Scalar");
@@ -94,7 +129,8 @@ class EstimatorBase {
     return Status::ok;
   }
 
-  /// Folds one sample from a raw array of K values (firmware convenience).
+  /// Folds one sample from a raw array of K values (firmware convenience). Precondition: `x`
+  /// points to K readable Scalars. `wrong_size` for a null pointer; otherwise as add() above.
   Status add(const Scalar* x, Scalar y, Scalar w = Scalar(1)) {
     if (x == nullptr) return Status::wrong_size;
     return add(Eigen::Map<const Vector>(x, m_k), y, w);
@@ -102,30 +138,56 @@ class EstimatorBase {
 
   /// Folds the rows of X (n x K) with responses y (n). All-or-nothing: every row is validated
   /// first; on any reject nothing is folded and the first reject's Status is returned.
+  ///
+  /// Returns the construction status if it is not `ok`; `wrong_size` (X.cols() != K, or y or w
+  /// not of length n); the first rejected row's status, in row order, as add() would give it;
+  /// `capacity_full` when fewer than n more samples fit (zero-weight rows count here, although they
+  /// are not stored); otherwise `ok`. Zero-weight rows are skipped. Math and flags as add().
+  ///
+  /// Cost: O(n K) validation + n times the estimator's update. Never allocates.
   template <typename XD, typename YD>
   Status addRows(const Eigen::MatrixBase<XD>& X, const Eigen::MatrixBase<YD>& y) {
     return addRowsImpl(X, y, static_cast<const Vector*>(nullptr));
   }
-  /// Weighted form of addRows (w has n entries).
+  /// Weighted form of addRows (w has n entries, each >= 0 and finite).
   template <typename XD, typename YD, typename WD>
   Status addRows(const Eigen::MatrixBase<XD>& X, const Eigen::MatrixBase<YD>& y, const Eigen::MatrixBase<WD>& w) {
     return addRowsImpl(X, y, &w);
   }
 
-  /// Forgets everything (options kept).
+  /// Forgets everything (options and status kept; ForgettingRls also clears `lost_definiteness`).
+  /// O(size of the state). Never allocates.
   void reset() {
     m_centering.reset();
     derived().clearState();
   }
 
-  /// Coefficients. Cost depends on the estimator (see its class comment).
+  /// Coefficients. Cost depends on the estimator (see its class comment). Value form of
+  /// solveInto: for Eigen::Dynamic K (unbounded MaxK) the returned Solution allocates its
+  /// vector; use solveInto in a loop that must not allocate.
   SolutionType solve() const {
     SolutionType s(m_k);
     derived().solveInto(s);
     return s;
   }
 
-  /// Coefficients into a caller-provided Solution (no allocation for any K).
+  /// Coefficients into a caller-provided Solution (no allocation for any K once `out` is sized).
+  ///
+  /// Math: slopes from R b = z by back substitution on the estimator's factor, intercept
+  /// b0 = ybar - xbar'b. When a column of R is numerically dependent (|r_jj| <= 8 (K+1) eps
+  /// times its column norm), column-pivoted Householder QR of the column-equilibrated R
+  /// (Businger & Golub 1965) gives the basic solution: dependent coefficients are zero.
+  /// GivensQr and ForgettingRls shadow this with a cheaper path (see there).
+  ///
+  /// Returns `empty` (no sample yet; coefficients zero), `not_available` (no finite factor or
+  /// solution; coefficients zero, flags `near_singular` and the estimator's own) or `ok`.
+  /// Flags: `rank_deficient` (rank < K), `too_few_samples` (n_eff <= p), the estimator's own
+  /// (`lost_definiteness`). No conditioning analysis here (`ill_conditioned`, `collinear` come
+  /// from conditioningInto / summarizeInto).
+  ///
+  /// Stability: that of the estimator's factor (class comments). Cost: the estimator's
+  /// factorization (BatchQr O(n K^2) + refinement sweeps, NormalEquations O(K^3)) + O(K^2)
+  /// back substitution (O(K^3) on the rank-deficient path).
   Status solveInto(SolutionType& out) const {
     out.flags = Flags();
     if (count() == 0) {
@@ -143,7 +205,8 @@ class EstimatorBase {
     return finishChecked(out);
   }
 
-  /// Full report at confidence `level` (e.g. 0.95).
+  /// Full report at confidence `level` (e.g. 0.95). Value form of summarizeInto (the Summary
+  /// allocates for Eigen::Dynamic K).
   SummaryType summarize(Scalar level = Scalar(0.95)) const {
     SummaryType s(m_k);
     summarizeInto(s, level);
@@ -151,6 +214,27 @@ class EstimatorBase {
   }
 
   /// Full report into a caller-provided Summary (no allocation for any K once sized).
+  ///
+  /// Math (NUMERICS §7.1-7.2): with F = sum lambda^age, F2 = sum lambda^(2 age), q = F2/F and
+  /// n_eff = F^2/F2 (Kish 1965): s^2 = SSE / (F - p q), Cov(b) = s^2 q R^-1 R^-T,
+  /// Var(b0) = s^2 q (1/W + ||R^-T xbar||^2), Cov(b0, b) = -Cov(b) xbar, t dof = n_eff - p,
+  /// intervals b -+ t SE with t = t_{(1+level)/2, dof} (studentTQuantile); R^2 = 1 - SSE/SST,
+  /// adjusted R^2 and F as in §7.1 with n_eff for n. At lambda = 1 these are the ordinary
+  /// s^2 = SSE/(n - p), Cov = s^2 (X~'X~)^-1, dof = n - p. `out.conditioning` is filled as by
+  /// conditioningInto.
+  ///
+  /// Preconditions: 0 < level < 1 (not checked: outside it the intervals are meaningless, NaN for
+  /// level >= 1); `out` sized for K (Summary(k) or resize), else it is resized (allocation for
+  /// Eigen::Dynamic K).
+  ///
+  /// Returns `empty` (only out.status is written), `not_available` (out.status and out.flags
+  /// written; flags say why) or `ok`. Flags: those of conditioningInto, `too_few_samples`
+  /// (F - p q <= 0 or n_eff <= p: s, t and the intervals are NaN), the estimator's own.
+  /// Standard errors are NaN when R is singular or rank deficient.
+  ///
+  /// Stability: covariances come from R^-1 (triangular inversion), not from inverting a
+  /// cross-product matrix; with `ill_conditioned` set they may have no correct digit (NUMERICS
+  /// §6.5). Cost: the estimator's factorization + O(K^3) + one t quantile.
   Status summarizeInto(SummaryType& out, Scalar level = Scalar(0.95)) const {
     if (count() == 0) {
       out.status = Status::empty;
@@ -165,12 +249,33 @@ class EstimatorBase {
     return out.status;
   }
 
-  /// Condition estimate, VIFs, numerical rank, digit estimates and flags.
+  /// Condition estimate, VIFs, numerical rank, digit estimates and flags. Value form of
+  /// conditioningInto (allocates for Eigen::Dynamic K).
   ConditioningType conditioning() const {
     ConditioningType c(m_k);
     conditioningInto(c);
     return c;
   }
+  /// Condition estimate, VIFs, numerical rank, digit estimates and flags into `out`.
+  ///
+  /// Math (NUMERICS §6.2-6.5), D = column norms of R (= of the centered data):
+  /// scaledCondition kappa_s = ||R D^-1||_1 times an estimate of ||(R D^-1)^-1||_1 (Hager 1984
+  /// with Higham's 1988 safeguard, two triangular solves per iteration, at most 5 iterations);
+  /// gramCondition = kappa_1(R)^2; lsCondition = kappa_s + kappa_s^2 rho/||z|| (Wedin 1973);
+  /// rank by column-pivoted QR of R D^-1 (Businger & Golub 1965), run only when a column looks
+  /// dependent; VIF_j = [(R'R)^-1]_jj ||R e_j||^2; digits from the first-order error estimate
+  /// of §6.5 (conservative).
+  ///
+  /// Flags, with kappa_eff = kappa_s for QR-type states and kappa_s^2 for cross-product states
+  /// (NormalEquations, ForgettingRls), u = eps/2: `ill_conditioned` when kappa_eff > u^-1/2 or some
+  /// coefficient keeps fewer than a third of the working digits; `near_singular` when
+  /// kappa_eff > 0.1/u, some coefficient has no correct digit left, or rank < K; `collinear`
+  /// when a VIF exceeds FitOptions::vifLimit (or R is singular: VIFs are then +inf);
+  /// `rank_deficient` when rank < K; plus the estimator's own.
+  ///
+  /// Returns `empty` (only out.status written), `not_available` (status and flags written) or
+  /// `ok`. Precondition: `out` sized for K, else it is resized. Cost: the estimator's
+  /// factorization + O(K^3) (R^-1 and the VIFs). Never allocates once `out` is sized.
   Status conditioningInto(ConditioningType& out) const {
     if (count() == 0) {
       out.status = Status::empty;
@@ -188,6 +293,8 @@ class EstimatorBase {
 
   /// Point prediction b0 + x0'b. Quiet NaN when there is no fit to predict from (empty, wrong
   /// size, or no usable factor); `predictionInterval` says which, with a Status.
+  /// Uses the estimator's solveInto, so flags such as `rank_deficient` are not reported here.
+  /// Cost: that of solveInto + O(K). Never allocates.
   template <typename XD>
   Scalar predict(const Eigen::MatrixBase<XD>& x0) const {
     SolutionType& s = m_solution;
@@ -196,6 +303,21 @@ class EstimatorBase {
   }
 
   /// Prediction with confidence and prediction intervals at `level`.
+  ///
+  /// Math (NUMERICS §7.1, with the forgetting correction of summarizeInto): yhat = b0 + x0'b,
+  /// leverage h0 = q (1/W + ||R^-T (x0 - xbar)||^2) (q ||R^-T x0||^2 without intercept);
+  /// confidence interval of the mean response yhat -+ t s sqrt(h0), prediction interval of a new
+  /// unit-weight observation yhat -+ t s sqrt(1 + h0), t = t_{(1+level)/2, n_eff - p}.
+  ///
+  /// Precondition: 0 < level < 1 (not checked).
+  ///
+  /// Returns `wrong_size` (x0.size() != K), `empty`, `not_available` (no finite factor) or `ok`.
+  /// Flags: `too_few_samples` (n_eff <= p: t and the intervals are NaN), `rank_deficient` (R
+  /// singular or a column dependent: leverage and intervals are NaN), the estimator's own. No
+  /// conditioning analysis (call conditioning() for `ill_conditioned`, `collinear`).
+  ///
+  /// Cost: the estimator's factorization + O(K^2) (one triangular solve) + one t quantile.
+  /// Never allocates.
   template <typename XD>
   PredictionType predictionInterval(const Eigen::MatrixBase<XD>& x0, Scalar level = Scalar(0.95)) const {
     PredictionType out;
@@ -212,7 +334,9 @@ class EstimatorBase {
     return out;
   }
 
-  /// Size in bytes of the image `snapshot` writes now.
+  /// Size in bytes of the image `snapshot` writes now: 40-byte header + payload (options,
+  /// centering, estimator state) + 4-byte CRC. Fixed for a given estimator type and K, except
+  /// BatchQr, whose image grows with rows(). O(K).
   std::size_t snapshotSize() const {
     detail::ImageCounter c;
     visitPayload(derived(), m_centering, c);
@@ -221,6 +345,11 @@ class EstimatorBase {
 
   /// Writes the state to `buffer` as a versioned, checksummed image (layout in snapshot.hpp).
   /// On success `written` holds the image size. Never allocates.
+  ///
+  /// Returns `buffer_too_small` (null buffer or capacity < snapshotSize(); `written` = 0 and
+  /// nothing is written) or `ok`. Scalars are copied as raw bytes, so a restored state continues
+  /// bit-identically. Precondition: `buffer` has `capacity` writable bytes. Cost: O(image size)
+  /// (the CRC-32 is bitwise, 8 steps per byte).
   Status snapshot(unsigned char* buffer, std::size_t capacity, std::size_t& written) const {
     written = 0;
     const std::size_t size = snapshotSize();
@@ -236,6 +365,15 @@ class EstimatorBase {
   /// Restores a state written by `snapshot` of an estimator of the same kind, Scalar, K and
   /// options. A truncated or damaged image gives `corrupt_image`, a foreign one
   /// `image_mismatch`; in both cases the state is untouched. Never allocates.
+  ///
+  /// Returns, checked in this order: the construction status if it is not `ok`;
+  /// `corrupt_image` (null, shorter than header + CRC, magic not "RFLD", `length` not equal to
+  /// the header's payload length + 44, CRC-32 mismatch, payload shorter than the options and
+  /// centering state); `image_mismatch` (another format
+  /// version, Scalar size or mantissa, estimator kind, intercept mode, byte order, K, forgetting
+  /// factor or VIF limit, other estimator options, or a state of the wrong size, e.g. a BatchQr
+  /// image with more rows than this capacity); otherwise `ok`.
+  /// Precondition: `image` points to `length` readable bytes. Cost: O(length).
   Status restore(const unsigned char* image, std::size_t length) {
     using detail::getField;
     if (derived().status() != Status::ok) return derived().status();
@@ -270,6 +408,14 @@ class EstimatorBase {
 
   /// Centered weighted cross-products: M = X~'X~ (K x K), m = X~'y~, and Syy (the "co-variances"
   /// of the regressors and with y, unnormalized). Divide by W for covariances.
+  ///
+  /// Math: from the factor, M = R'R, m = R'z, Syy = SST (uncentered sums with
+  /// Intercept::none; forgotten sums under lambda < 1). ForgettingRls with RlsStart::prior
+  /// includes the prior's information in M. NormalEquations rebuilds M from its semidefinite
+  /// Cholesky factor, so a column dependent to working precision loses its dependent part.
+  ///
+  /// Precondition: M and m sized for K, else they are resized (allocation for Eigen::Dynamic K).
+  /// Returns `empty`, `not_available` or `ok`. Cost: the estimator's factorization + O(K^3).
   Status crossProducts(Matrix& M, Vector& m, Scalar& syy) const {
     if (count() == 0) return Status::empty;
     if (!factorizeChecked()) return Status::not_available;
@@ -279,7 +425,9 @@ class EstimatorBase {
     return Status::ok;
   }
 
-  /// Weighted covariance matrix of the regressors, M / W.
+  /// Weighted covariance matrix of the regressors, M / W (see crossProducts: same Status values
+  /// and cost). Note: uses a temporary K-vector, which allocates when K and MaxK are both
+  /// Eigen::Dynamic.
   Status covariance(Matrix& C) const {
     Vector m(m_k);
     Scalar syy = 0;
@@ -288,7 +436,8 @@ class EstimatorBase {
     return s;
   }
 
-  /// Correlation matrix of the regressors (unit diagonal where a column varies).
+  /// Correlation matrix of the regressors (unit diagonal where a column varies; a constant
+  /// column gets a zero row and column). Same Status values, cost and allocation as covariance().
   Status correlation(Matrix& C) const {
     const Status s = covariance(C);
     if (s != Status::ok) return s;
@@ -298,6 +447,8 @@ class EstimatorBase {
   }
 
  protected:
+  /// For estimators: `k` regressors (must equal K unless K is Eigen::Dynamic; k > 0) and the
+  /// shared options. Sets status() (`wrong_size` or validate(fit)); allocates for Eigen::Dynamic K only.
   EstimatorBase(Eigen::Index k, const FitOptions& fit)
       : m_fit(fit),
         m_k(k),
@@ -310,11 +461,16 @@ class EstimatorBase {
     m_row.setZero();
   }
 
+  /// CRTP access to the estimator.
   Derived& derived() { return static_cast<Derived&>(*this); }
+  /// CRTP access to the estimator (const).
   const Derived& derived() const { return static_cast<const Derived&>(*this); }
 
+  /// Forgetting factor lambda in the estimator's Scalar.
   Scalar lambda() const { return m_lambda; }
+  /// Intercept mode of the fit.
   Intercept interceptMode() const { return m_fit.intercept; }
+  /// The shared query scratch (mutable: const queries write it; one thread at a time).
   WorkspaceType& work() const { return m_work; }
 
   /// Default factor bookkeeping: means, W and SST from the centering.
@@ -329,6 +485,7 @@ class EstimatorBase {
     ws.intercept = m_fit.intercept == Intercept::fit ? ws.ybar - ws.xbar.dot(ws.b) : Scalar(0);
   }
 
+  /// Sets `ok` and the `too_few_samples` / `rank_deficient` flags of a finished solution.
   void finishSolution(SolutionType& out) const {
     out.status = Status::ok;
     const Eigen::Index p = m_k + (m_fit.intercept == Intercept::fit ? 1 : 0);
@@ -336,6 +493,7 @@ class EstimatorBase {
     if (out.rank < m_k) out.flags.set(Flag::rank_deficient);
   }
 
+  /// Zero solution with `not_available` and the workspace's flags.
   Status unavailable(SolutionType& out) const {
     out.coefficients.setZero(m_k);
     out.intercept = Scalar(0);
@@ -375,6 +533,7 @@ class EstimatorBase {
     return c.bytes;
   }
 
+  /// Sample counts, forgetting sums and options the statistics need.
   detail::SampleFacts<Scalar> facts() const {
     detail::SampleFacts<Scalar> f;
     f.count = m_centering.count();

@@ -13,8 +13,12 @@ namespace rowfold {
 /// means (deviation variables) and recovers b0 = ybar - xbar'b; `none` fits through the origin.
 enum class Intercept : std::uint8_t { fit, none };
 
-/// Options every estimator understands.
+/// Options every estimator understands. Plain values: copied into the estimator at
+/// construction and checked there by `validate` (the result is the estimator's `status()`).
+/// They are also written into snapshot images; `restore` accepts only an image written with
+/// the same options.
 struct FitOptions {
+  /// Intercept mode (default: fitted, by online centering; see `Intercept`).
   Intercept intercept = Intercept::fit;
   /// Forgetting factor lambda in (0, 1]; 1 = ordinary (growing-memory) least squares.
   /// Memory T0 = 1/(1 - lambda) samples.
@@ -24,6 +28,8 @@ struct FitOptions {
 };
 
 /// Checks the shared options; estimators call this from their constructors.
+/// Returns `invalid_options` unless 0 < forgetting <= 1, 1 <= vifLimit < inf and `intercept`
+/// is one of the enumerators; otherwise `ok`. O(1).
 inline Status validate(const FitOptions& o) noexcept {
   if (!(o.forgetting > 0.0 && o.forgetting <= 1.0)) return Status::invalid_options;
   if (!(o.vifLimit >= 1.0) || !std::isfinite(o.vifLimit)) return Status::invalid_options;

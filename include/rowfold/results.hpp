@@ -12,22 +12,28 @@ namespace rowfold {
 
 /// Coefficients of a fit. `status` is `ok` or `empty`; `flags` may carry `rank_deficient`
 /// (dependent coefficients set to zero: the basic solution) or `too_few_samples`.
+/// `not_available` (with `near_singular`, and `lost_definiteness` from ForgettingRls) when the
+/// state gives no finite solution; the coefficients are then zero.
 template <typename Scalar, int K, int MaxK = K>
 struct Solution {
+  /// K-vector type (inline storage for fixed K or bounded MaxK).
   using Vector = typename detail::Dims<Scalar, K, MaxK>::Vector;
   Vector coefficients;  ///< slopes b (K values)
   Scalar intercept = 0;  ///< b0 = ybar - xbar'b (0 with Intercept::none)
-  Eigen::Index rank = 0;
-  Status status = Status::empty;
-  Flags flags;
+  Eigen::Index rank = 0;  ///< numerical rank of the slope factor (K when every column is independent)
+  Status status = Status::empty;  ///< `ok`, `empty` or `not_available`
+  Flags flags;  ///< warnings (see Flag)
 
+  /// Zero coefficients, for fixed K.
   Solution() { coefficients.setZero(); }
+  /// Zero coefficients sized for `k` regressors (the only allocation for Eigen::Dynamic K).
   explicit Solution(Eigen::Index k) : coefficients(k) { coefficients.setZero(); }
 };
 
 /// How far the fit can be trusted numerically (NUMERICS §6).
 template <typename Scalar, int K, int MaxK = K>
 struct Conditioning {
+  /// K-vector type (inline storage for fixed K or bounded MaxK).
   using Vector = typename detail::Dims<Scalar, K, MaxK>::Vector;
   /// 1-norm condition estimate of the column-equilibrated factor R D^-1 (Hager/Higham);
   /// governs the accuracy of a backward-stable QR solution.
@@ -41,10 +47,12 @@ struct Conditioning {
   Vector digits;  ///< estimated correct significant digits per slope (NUMERICS §6.5; conservative)
   Scalar interceptDigits = 0;  ///< the same for the intercept
   Eigen::Index rank = 0;  ///< numerical rank (column-pivoted QR of R D^-1)
-  Flags flags;
-  Status status = Status::empty;
+  Flags flags;  ///< `rank_deficient`, `collinear`, `ill_conditioned`, `near_singular` (+ the estimator's own)
+  Status status = Status::empty;  ///< `ok`, `empty` or `not_available`
 
+  /// Zero-filled, for fixed K.
   Conditioning() { vif.setZero(); digits.setZero(); }
+  /// Zero-filled and sized for `k` regressors (allocates for Eigen::Dynamic K).
   explicit Conditioning(Eigen::Index k) : vif(k), digits(k) { vif.setZero(); digits.setZero(); }
 };
 
@@ -52,29 +60,48 @@ struct Conditioning {
 /// use the effective-sample-size correction documented in `estimator_base.hpp`.
 template <typename Scalar, int K, int MaxK = K>
 struct Summary {
-  using Dims = detail::Dims<Scalar, K, MaxK>;
-  using Vector = typename Dims::Vector;
-  using Matrix = typename Dims::Matrix;
+  using Dims = detail::Dims<Scalar, K, MaxK>;  ///< size arithmetic (internal)
+  using Vector = typename Dims::Vector;  ///< K-vector type
+  using Matrix = typename Dims::Matrix;  ///< K x K matrix type
 
-  Status status = Status::empty;
-  Flags flags;
+  Status status = Status::empty;  ///< `ok`, `empty` or `not_available`
+  Flags flags;  ///< the conditioning flags, `too_few_samples` and the estimator's own (`lost_definiteness`)
   Scalar level = Scalar(0.95);  ///< confidence level of the intervals
+  ///@{
+  /// Per slope: estimate b, standard error, t value b/SE, and the interval b -+ t_q SE at `level`.
+  /// NaN standard errors (and t values, intervals) when the factor is singular or rank deficient.
   Vector coefficients, standardErrors, tValues, lower, upper;
+  ///@}
+  ///@{
+  /// The same for the intercept b0 (zeros with Intercept::none).
   Scalar intercept = 0, interceptStandardError = 0, interceptT = 0, interceptLower = 0, interceptUpper = 0;
+  ///@}
   Matrix covariance;  ///< Cov(b) of the slopes
   Vector interceptCovariance;  ///< Cov(b0, b)
   Scalar residualStandardError = 0;  ///< s = sqrt(SSE / (n_eff-corrected dof))
+  ///@{
   Scalar sse = 0, sst = 0;  ///< weighted residual and total (centered unless Intercept::none) sums of squares
+  ///@}
+  ///@{
+  /// R^2 = 1 - SSE/SST, adjusted R^2 (n_eff in place of n) and the overall F statistic
+  /// (NUMERICS §7.1).
   Scalar rSquared = 0, adjustedRSquared = 0, fStatistic = 0;
+  ///@}
   Scalar residualDof = 0;  ///< degrees of freedom of s and of the t quantile
   Scalar tQuantile = 0;  ///< t_{(1+level)/2, residualDof}
-  Scalar effectiveCount = 0, weightSum = 0;
-  std::uint64_t count = 0;
+  ///@{
+  Scalar effectiveCount = 0, weightSum = 0;  ///< n_eff = F^2/F2 (Kish 1965) and W
+  ///@}
+  std::uint64_t count = 0;  ///< accepted samples
   Eigen::Index parameters = 0;  ///< p = K (+1 with an intercept)
-  Conditioning<Scalar, K, MaxK> conditioning;
+  Conditioning<Scalar, K, MaxK> conditioning;  ///< the conditioning report of the same factor
 
+  /// Sized for fixed K (empty for Eigen::Dynamic K: call resize or use Summary(k)).
   Summary() { resize(Dims::K == Eigen::Dynamic ? 0 : Dims::K); }
+  /// Sized for `k` regressors.
   explicit Summary(Eigen::Index k) { resize(k); }
+  /// Sizes (and zeroes) every vector and matrix for `k` regressors; allocates for Eigen::Dynamic K.
+  /// Size a Summary once so that summarizeInto never allocates.
   void resize(Eigen::Index k) {
     coefficients.setZero(k);
     standardErrors.setZero(k);
@@ -91,13 +118,17 @@ struct Summary {
 /// interval (a new unit-weight observation).
 template <typename Scalar>
 struct Prediction {
-  Scalar value = 0;
+  Scalar value = 0;  ///< yhat = b0 + x0'b
   Scalar standardError = 0;  ///< of the mean response
-  Scalar confidenceLower = 0, confidenceUpper = 0;
-  Scalar predictionLower = 0, predictionUpper = 0;
+  ///@{
+  Scalar confidenceLower = 0, confidenceUpper = 0;  ///< yhat -+ t s sqrt(h0)
+  ///@}
+  ///@{
+  Scalar predictionLower = 0, predictionUpper = 0;  ///< yhat -+ t s sqrt(1 + h0)
+  ///@}
   Scalar leverage = 0;  ///< h0 = 1/W + ||R^-T (x0 - xbar)||^2 (scaled by the forgetting ratio)
-  Status status = Status::empty;
-  Flags flags;
+  Status status = Status::empty;  ///< `ok`, `empty`, `wrong_size` or `not_available`
+  Flags flags;  ///< `too_few_samples`, `rank_deficient` (then leverage and intervals are NaN), `lost_definiteness`
 };
 
 }  // namespace rowfold

@@ -33,9 +33,13 @@
 
 namespace rowfold {
 
-/// Which estimator wrote an image.
+/// Which estimator wrote an image (byte 8 of the header): BatchQr = 1, GivensQr = 2,
+/// NormalEquations = 3, ForgettingRls = 4. `restore` refuses an image of another kind with
+/// `Status::image_mismatch`.
 enum class EstimatorKind : std::uint8_t { batch_qr = 1, givens_qr = 2, normal_equations = 3, forgetting_rls = 4 };
 
+/// Format version written at offset 4 of every image; `restore` accepts only this version
+/// (`Status::image_mismatch` otherwise).
 constexpr std::uint16_t kSnapshotVersion = 1;
 
 namespace detail {

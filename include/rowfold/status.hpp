@@ -9,6 +9,21 @@ namespace rowfold {
 /// Outcome of a call that folds samples or validates options.
 /// `ok` is 0; every reject reason has its own value. A call that returns anything
 /// other than `ok` has left the estimator state exactly as it was.
+///
+/// Which call returns which value (details at each member function of EstimatorBase):
+/// - `nonfinite_input`, `negative_weight`: `add`, `addRows`.
+/// - `wrong_size`: `status()` (k does not match K), `add`, `addRows`, `predictionInterval`,
+///   `restore`.
+/// - `capacity_full`: `add`, `addRows` (BatchQr full, or an estimator whose own options are
+///   invalid).
+/// - `invalid_options`: `validate`, `status()`, and the calls that check it first (`add`,
+///   `addRows`, `restore`).
+/// - `empty`, `not_available`: the queries `solveInto`, `summarizeInto`, `conditioningInto`,
+///   `predictionInterval`, `crossProducts`, `covariance`, `correlation` (`not_available` when the
+///   state gives no finite factor; the flags say why).
+/// - `buffer_too_small`: `snapshot`. `corrupt_image`, `image_mismatch`: `restore`.
+/// - `outlier`, `not_definite`, `state_mismatch`: reserved for the outlier gate, downdating
+///   windows and merge; no call of this version returns them.
 enum class Status : std::uint8_t {
   ok = 0,
   nonfinite_input,  ///< x or y holds NaN or Inf
@@ -49,6 +64,13 @@ constexpr const char* nameOf(Status s) noexcept {
 
 /// Warning flags (a bit set). A flag says how far a fit can be trusted; it never
 /// stops the estimator from returning a defined answer.
+///
+/// Where each flag is raised: `rank_deficient` and `too_few_samples` by every query
+/// (`solveInto`, `summarizeInto`, `predictionInterval`; `conditioningInto` sets `rank_deficient`);
+/// `ill_conditioned`, `near_singular` and `collinear` by the conditioning analysis
+/// (`conditioningInto`, `summarizeInto`), `near_singular` also with `not_available` when the factor
+/// is not finite; `lost_definiteness` by ForgettingRls only. `low_excitation` and
+/// `windup_guarded` are reserved for the windup guard and are not raised by this version.
 enum class Flag : std::uint16_t {
   none = 0,
   ill_conditioned = 1u << 0,   ///< scaled condition beyond u^-1/2: covariances/VIFs lose all digits
@@ -62,17 +84,26 @@ enum class Flag : std::uint16_t {
   windup_guarded = 1u << 7      ///< the windup guard held forgetting back (or bounded the factor)
 };
 
-/// A set of `Flag`s.
+/// A set of `Flag`s (16 bits; trivially copyable, constexpr, allocation-free).
 class Flags {
  public:
+  /// The empty set.
   constexpr Flags() noexcept = default;
+  /// The set holding `f` alone (implicit, so a Flag converts to Flags).
   constexpr Flags(Flag f) noexcept : m_bits(static_cast<std::uint16_t>(f)) {}  // NOLINT implicit by design
+  /// True if `f` is in the set.
   constexpr bool has(Flag f) const noexcept { return (m_bits & static_cast<std::uint16_t>(f)) != 0; }
+  /// True if any flag is set.
   constexpr bool any() const noexcept { return m_bits != 0; }
+  /// Adds `f`.
   constexpr void set(Flag f) noexcept { m_bits = static_cast<std::uint16_t>(m_bits | static_cast<std::uint16_t>(f)); }
+  /// Adds every flag of `f`.
   constexpr void set(Flags f) noexcept { m_bits = static_cast<std::uint16_t>(m_bits | f.m_bits); }
+  /// The raw bit pattern (bit i = the Flag with value 1 << i), for logs and images.
   constexpr std::uint16_t bits() const noexcept { return m_bits; }
+  /// Same set of flags.
   friend constexpr bool operator==(Flags a, Flags b) noexcept { return a.m_bits == b.m_bits; }
+  /// Different sets of flags.
   friend constexpr bool operator!=(Flags a, Flags b) noexcept { return a.m_bits != b.m_bits; }
 
  private:
