@@ -15,9 +15,11 @@ namespace rowfold {
 
 /// Options of BatchQr.
 struct BatchQrOptions : FitOptions {
-  /// Rows kept when the capacity is a runtime value (Capacity = Eigen::Dynamic).
+  /// Rows kept when the capacity is a runtime value (Capacity = Eigen::Dynamic); must be > 0.
+  /// Ignored for a compile-time Capacity.
   Eigen::Index capacity = 1024;
-  /// Maximum refinement sweeps (stops earlier when the correction is below rounding).
+  /// Maximum refinement sweeps after the first solve (stops earlier when the correction is
+  /// below rounding or stops shrinking); must be >= 0; 0 = plain Householder QR.
   int refinementSteps = 8;
 };
 
@@ -28,7 +30,8 @@ struct BatchQrOptions : FitOptions {
 ///   [ I  A ] [ r ]   [ b ]        f = b - r - A x,   g = -A' r   (residuals in twofold precision,
 ///   [ A' 0 ] [ x ] = [ 0 ]        computed from the *raw* stored data)
 /// ```
-/// (Björck 1967, BIT 7:257-278; Björck 1996 §2.9.4). Because the residuals f and g are formed
+/// (Björck 1967, BIT 7:257-278, from memory; Björck 1996 §2.9.4, section from memory).
+/// Because the residuals f and g are formed
 /// in twofold (double-length, FMA-based) arithmetic against the raw data, the solution is
 /// accurate to nearly the last digit the data allow even for large-residual problems, where
 /// plain refinement of x alone does not help. This is the library's accuracy reference.
@@ -38,27 +41,45 @@ struct BatchQrOptions : FitOptions {
 /// u kappa_s << 1.
 ///
 /// **Cost:** add O(K) (stores the row); solve O(n K^2) plus O(n K) per refinement sweep;
-/// memory n (K + 2) scalars of rows plus n (K + 5) of workspace.
+/// memory capacity (K + 2) scalars of rows plus capacity (K + 4) of workspace (n = rows stored).
 /// Rows are kept in a fixed (Capacity) or runtime (options.capacity) buffer; when it is full,
 /// add returns Status::capacity_full and leaves the state untouched.
+/// Every query (solve, summarize, conditioning, predict, predictionInterval, crossProducts)
+/// redoes the factorization and refinement from the stored rows.
+///
+/// **Status and flags:** those of EstimatorBase, plus `capacity_full` from add/addRows when
+/// the buffer is full, and `invalid_options` from status() (capacity <= 0 or refinementSteps < 0;
+/// add then returns `capacity_full`). Fewer rows than coefficients, or a numerically dependent
+/// column, take the basic-solution path without refinement (`rank_deficient`).
+///
+/// **Forgetting:** row i of n is weighted by w_i lambda^(n-1-i) at solve time; nothing is
+/// dropped, so with lambda < 1 the capacity still bounds the memory.
 template <typename Scalar_, int K_, int Capacity_ = Eigen::Dynamic, int MaxK_ = K_>
 class BatchQr : public EstimatorBase<BatchQr<Scalar_, K_, Capacity_, MaxK_>, Scalar_, K_, MaxK_> {
   using Base = EstimatorBase<BatchQr<Scalar_, K_, Capacity_, MaxK_>, Scalar_, K_, MaxK_>;
   friend Base;
 
  public:
-  using typename Base::Dims;
-  using typename Base::Scalar;
-  using typename Base::Vector1;
-  using typename Base::WorkspaceType;
-  using Options = BatchQrOptions;
+  using typename Base::Dims;  ///< see EstimatorBase
+  using typename Base::Scalar;  ///< see EstimatorBase
+  using typename Base::Vector1;  ///< see EstimatorBase
+  using typename Base::WorkspaceType;  ///< see EstimatorBase
+  using Options = BatchQrOptions;  ///< options type
+  /// Error model of the conditioning analysis: solved against the raw stored data.
   static constexpr detail::ErrorModel errorModel = detail::ErrorModel::refined_raw;
-  static constexpr EstimatorKind kind = EstimatorKind::batch_qr;
+  static constexpr EstimatorKind kind = EstimatorKind::batch_qr;  ///< snapshot image kind
+  /// Stored regressors, capacity x K (inline storage for a fixed Capacity and K).
   using RowMatrix = Eigen::Matrix<Scalar, Eigen::Dynamic, K_, Eigen::ColMajor, Capacity_, MaxK_>;
+  /// A column of capacity entries (responses, weights, solve scratch).
   using Column = Eigen::Matrix<Scalar, Eigen::Dynamic, 1, Eigen::ColMajor, Capacity_, 1>;
+  /// Solve-time copy of the design, capacity x (K+1).
   using Design = Eigen::Matrix<Scalar, Eigen::Dynamic, Dims::K1, Eigen::ColMajor, Capacity_, Dims::MaxK1>;
 
+  /// Fixed K. status() reports invalid options.
   explicit BatchQr(const Options& options = Options()) : BatchQr(K_ == Eigen::Dynamic ? 0 : K_, options) {}
+  /// Runtime K (any K > 0 for Eigen::Dynamic; must equal K otherwise, else status() is
+  /// `wrong_size`). Allocates the row buffer and the solve workspace (capacity (2K + 6) scalars
+  /// plus O(K)) unless Capacity and K are compile-time; nothing later.
   BatchQr(Eigen::Index k, const Options& options)
       : Base(k, options),
         m_options(options),
@@ -79,10 +100,14 @@ class BatchQr : public EstimatorBase<BatchQr<Scalar_, K_, Capacity_, MaxK_>, Sca
     clearState();
   }
 
+  /// `invalid_options` for a capacity <= 0 or refinementSteps < 0, else EstimatorBase::status().
   Status status() const { return m_badOptions ? Status::invalid_options : Base::status(); }
+  /// Rows the buffer holds (Capacity, or options.capacity for Eigen::Dynamic).
   Eigen::Index capacity() const { return m_capacity; }
+  /// Rows stored now (accepted samples of positive weight since the last reset).
   Eigen::Index rows() const { return m_n; }
-  /// Refinement sweeps used by the last factorization.
+  /// Sweeps of the last factorization, counting the first (plain QR) solve: 1 to
+  /// refinementSteps + 1; 0 on the rank-deficient path or before any query.
   int refinementSweeps() const { return m_sweeps; }
 
  private:

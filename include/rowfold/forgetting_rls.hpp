@@ -23,13 +23,15 @@ enum class RlsStart : std::uint8_t {
 
 /// Options of ForgettingRls.
 struct ForgettingRlsOptions : FitOptions {
+  /// How the recursion starts (default: exact).
   RlsStart start = RlsStart::exact;
-  /// delta of P0 = I/delta for RlsStart::prior (in the units of the centered regressors).
+  /// delta of P0 = I/delta for RlsStart::prior (in the units of the centered regressors); must
+  /// be > 0 and finite with that start (else status() is `invalid_options`); unused otherwise.
   double priorPrecision = 1e-6;
 };
 
 /// Recursive least squares with forgetting factor lambda (Ljung & Söderström 1983; Åström &
-/// Wittenmark 1995 §2.2; NUMERICS §1.2(a)). For each scaled centered row (phi, eta):
+/// Wittenmark 1995 §2.2, section number from memory; NUMERICS §1.2(a)). For each scaled centered row (phi, eta):
 /// ```
 ///   g = P phi,  alpha = lambda + phi'g,  e = eta - phi'theta,
 ///   theta += g e / alpha,  P = (P - g g'/alpha) / lambda,  SSE = lambda SSE + lambda e^2/alpha.
@@ -47,25 +49,41 @@ struct ForgettingRlsOptions : FitOptions {
 /// lose definiteness (NUMERICS §1.3). The estimator checks diag(P) > 0 and alpha > 0 on every
 /// update and raises the sticky `lost_definiteness` flag. Prefer GivensQr for float32.
 ///
-/// **Cost:** add ~ 2K^2 multiply-adds; solve O(K); summarize O(K^3).
+/// **Cost:** add ~ 2K^2 multiply-adds (before the start: ~K^2, plus one O(K^3) attempt to
+/// start per sample once count + 1 >= p); solve O(K) (before the start O(K^3), by the
+/// co-moments); summarize, conditioning, predictionInterval and crossProducts O(K^3) (they
+/// factor P). State: K^2 (P, lower triangle used) + 2K scalars + centering.
+///
+/// **Status and flags:** those of EstimatorBase, plus `invalid_options` from status() for a
+/// prior start with priorPrecision not > 0 and finite (add then returns `capacity_full`).
+/// `lost_definiteness` is sticky: once alpha <= 0 (or non-finite) or a diagonal entry of P
+/// is <= 0, the flag stays on every result until reset(); a row that gives alpha <= 0 is not
+/// applied to P and theta (the centering still counts it). The queries that factor P
+/// (summarize, conditioning, predictionInterval, crossProducts) return `not_available` when P is
+/// not positive definite to working precision; summarizeInto and conditioningInto then carry
+/// `lost_definiteness` and `near_singular`. solve() does not factor P and still returns theta.
 template <typename Scalar_, int K_, int MaxK_ = K_>
 class ForgettingRls : public EstimatorBase<ForgettingRls<Scalar_, K_, MaxK_>, Scalar_, K_, MaxK_> {
   using Base = EstimatorBase<ForgettingRls<Scalar_, K_, MaxK_>, Scalar_, K_, MaxK_>;
   friend Base;
 
  public:
-  using typename Base::Dims;
-  using typename Base::Scalar;
-  using typename Base::SolutionType;
-  using typename Base::Vector;
-  using typename Base::Matrix;
-  using typename Base::Vector1;
-  using typename Base::WorkspaceType;
-  using Options = ForgettingRlsOptions;
+  using typename Base::Dims;  ///< see EstimatorBase
+  using typename Base::Scalar;  ///< see EstimatorBase
+  using typename Base::SolutionType;  ///< see EstimatorBase
+  using typename Base::Vector;  ///< see EstimatorBase
+  using typename Base::Matrix;  ///< see EstimatorBase
+  using typename Base::Vector1;  ///< see EstimatorBase
+  using typename Base::WorkspaceType;  ///< see EstimatorBase
+  using Options = ForgettingRlsOptions;  ///< options type
+  /// Error model of the conditioning analysis: a cross-product state (squares the condition).
   static constexpr detail::ErrorModel errorModel = detail::ErrorModel::online_gram;
-  static constexpr EstimatorKind kind = EstimatorKind::forgetting_rls;
+  static constexpr EstimatorKind kind = EstimatorKind::forgetting_rls;  ///< snapshot image kind
 
+  /// Fixed K. status() reports invalid options.
   explicit ForgettingRls(const Options& options = Options()) : ForgettingRls(K_ == Eigen::Dynamic ? 0 : K_, options) {}
+  /// Runtime K (any K > 0 for Eigen::Dynamic; must equal K otherwise, else status() is
+  /// `wrong_size`). Allocates P, theta and the gain for Eigen::Dynamic K, nothing later.
   ForgettingRls(Eigen::Index k, const Options& options)
       : Base(k, options), m_options(options), m_P(k, k), m_theta(k), m_gain(k) {
     if (this->status() == Status::ok && options.start == RlsStart::prior &&
@@ -74,14 +92,21 @@ class ForgettingRls : public EstimatorBase<ForgettingRls<Scalar_, K_, MaxK_>, Sc
     clearState();
   }
 
+  /// `invalid_options` for a prior start with priorPrecision not > 0 and finite, else
+  /// EstimatorBase::status().
   Status status() const { return m_badOptions ? Status::invalid_options : Base::status(); }
   /// True once P and theta are being updated recursively (after the exact start).
   bool recursive() const { return m_recursive; }
   /// P = (X~'X~)^-1 (lower triangle valid; meaningful when recursive()).
   const Matrix& covarianceFactor() const { return m_P; }
-  /// Current slopes theta.
+  /// Current slopes theta (meaningful when recursive(); before, the storage holds m = X~'y~).
   const Vector& theta() const { return m_theta; }
 
+  /// Coefficients: theta and b0 = ybar - xbar'theta, O(K), once recursive(); before that (or
+  /// with no sample) EstimatorBase::solveInto on the accumulated co-moments (O(K^3)).
+  /// Returns `empty`, `not_available` (non-finite theta: `near_singular`) or `ok`; flags
+  /// `lost_definiteness` (sticky), `too_few_samples`, and `rank_deficient` only before the start
+  /// (the recursion always reports rank K). Not backward stable (class comment). Never allocates.
   Status solveInto(SolutionType& out) const {
     if (!m_recursive || this->count() == 0) return Base::solveInto(out);
     out.flags = Flags();

@@ -9,12 +9,12 @@
 
 namespace rowfold {
 
-/// Options of GivensQr (see FitOptions).
+/// Options of GivensQr (see FitOptions; nothing of its own).
 struct GivensQrOptions : FitOptions {};
 
 /// Least squares by updating the augmented upper-triangular factor [R z; 0 rho] of the
 /// centered, weighted data [X~ y~] one row at a time (Gentleman 1973, J. Inst. Maths Applics
-/// 12:329-336; Golub & Van Loan 2013 §5.1.8; NUMERICS §1.2(d), §4.2):
+/// 12:329-336; Golub & Van Loan 2013 §5.1.8, section number from memory; NUMERICS §1.2(d), §4.2):
 /// ```
 ///   [ sqrt(lambda) R   sqrt(lambda) z ]   K+1 Givens rotations    [ R+  z+ ]
 ///   [ 0                sqrt(lambda) rho ] ---------------------->  [ 0   rho+ ]
@@ -31,33 +31,42 @@ struct GivensQrOptions : FitOptions {};
 /// **Cost:** add ~ 2 (K+1)^2 multiplies + (K+1) square roots and divisions; solve = one back
 /// substitution (K^2/2); summarize/conditioning O(K^3). State: (K+1)(K+2)/2 scalars of the
 /// factor (stored as a full (K+1)^2 matrix) + centering.
+///
+/// **Status and flags:** those of EstimatorBase; no capacity limit (`capacity_full` never
+/// occurs) and no flags of its own. With lambda = 1 in float32, very long runs lose digits as
+/// R and z grow like sqrt(n) (NUMERICS §1.3): use lambda < 1 or double there.
 template <typename Scalar_, int K_, int MaxK_ = K_>
 class GivensQr : public EstimatorBase<GivensQr<Scalar_, K_, MaxK_>, Scalar_, K_, MaxK_> {
   using Base = EstimatorBase<GivensQr<Scalar_, K_, MaxK_>, Scalar_, K_, MaxK_>;
   friend Base;
 
  public:
-  using typename Base::Dims;
-  using typename Base::Scalar;
-  using typename Base::SolutionType;
-  using typename Base::Vector1;
-  using typename Base::WorkspaceType;
-  using Options = GivensQrOptions;
+  using typename Base::Dims;  ///< see EstimatorBase
+  using typename Base::Scalar;  ///< see EstimatorBase
+  using typename Base::SolutionType;  ///< see EstimatorBase
+  using typename Base::Vector1;  ///< see EstimatorBase
+  using typename Base::WorkspaceType;  ///< see EstimatorBase
+  using Options = GivensQrOptions;  ///< options type
+  /// Error model of the conditioning analysis: orthogonal updates of online-centered rows.
   static constexpr detail::ErrorModel errorModel = detail::ErrorModel::online_qr;
-  static constexpr EstimatorKind kind = EstimatorKind::givens_qr;
+  static constexpr EstimatorKind kind = EstimatorKind::givens_qr;  ///< snapshot image kind
 
-  /// Fixed K.
+  /// Fixed K. status() reports invalid options; see EstimatorBase::status().
   explicit GivensQr(const Options& options = Options()) : GivensQr(K_ == Eigen::Dynamic ? 0 : K_, options) {}
-  /// Runtime K (any K for Eigen::Dynamic; must equal K otherwise).
+  /// Runtime K (any K > 0 for Eigen::Dynamic; must equal K otherwise, else status() is
+  /// `wrong_size`). Allocates the factor for Eigen::Dynamic K, nothing later.
   GivensQr(Eigen::Index k, const Options& options) : Base(k, options), m_factor(k + 1, k + 1) {
     m_factor.setZero();
   }
 
-  /// The augmented factor [R z; 0 rho] ((K+1) x (K+1), upper triangular).
+  /// The augmented factor [R z; 0 rho] ((K+1) x (K+1), upper triangular; zero before the
+  /// second sample of a centered fit). R'R = X~'X~, R b = z, rho^2 = weighted SSE.
   const typename Dims::Matrix1& factor() const { return m_factor; }
 
   /// Back substitution on the stored factor (O(K^2)); the pivoted fallback only when a
-  /// column is numerically dependent.
+  /// column is numerically dependent (O(K^3), basic solution, `rank_deficient`).
+  /// Returns `empty`, `not_available` (non-finite result: `near_singular`) or `ok`; flags
+  /// `rank_deficient`, `too_few_samples`. Backward stable (class comment). Never allocates.
   Status solveInto(SolutionType& out) const {
     out.flags = Flags();
     if (this->count() == 0) return Base::solveInto(out);

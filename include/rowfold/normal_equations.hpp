@@ -9,7 +9,7 @@
 
 namespace rowfold {
 
-/// Options of NormalEquations (see FitOptions).
+/// Options of NormalEquations (see FitOptions; nothing of its own).
 struct NormalEquationsOptions : FitOptions {};
 
 /// Least squares from the centered weighted co-moments G = [M m; m' Syy] = [X~ y~]'[X~ y~],
@@ -23,28 +23,40 @@ struct NormalEquationsOptions : FitOptions {};
 /// inputs or float32 with kappa_s beyond ~1e2 (flags report it).
 ///
 /// **Cost:** add ~ (K+1)(K+2)/2 multiply-adds; solve O(K^3/6) (Cholesky) + K^2 (substitution).
+/// Every query (solve, summarize, conditioning, predictionInterval, crossProducts) factors the
+/// co-moments again; summarize and conditioning add O(K^3). State: (K+1)^2 scalars (lower
+/// triangle used) + centering.
+///
+/// **Status and flags:** those of EstimatorBase; no capacity limit. The Cholesky factorization
+/// never fails: a pivot not above 4 (K+1) eps times its diagonal entry (a column dependent to
+/// working precision) gives a zero row, which the solve reports as `rank_deficient`. Inputs
+/// whose squares overflow make the factor non-finite: `not_available` with `near_singular`.
 template <typename Scalar_, int K_, int MaxK_ = K_>
 class NormalEquations : public EstimatorBase<NormalEquations<Scalar_, K_, MaxK_>, Scalar_, K_, MaxK_> {
   using Base = EstimatorBase<NormalEquations<Scalar_, K_, MaxK_>, Scalar_, K_, MaxK_>;
   friend Base;
 
  public:
-  using typename Base::Dims;
-  using typename Base::Scalar;
-  using typename Base::Vector1;
-  using typename Base::WorkspaceType;
-  using Options = NormalEquationsOptions;
+  using typename Base::Dims;  ///< see EstimatorBase
+  using typename Base::Scalar;  ///< see EstimatorBase
+  using typename Base::Vector1;  ///< see EstimatorBase
+  using typename Base::WorkspaceType;  ///< see EstimatorBase
+  using Options = NormalEquationsOptions;  ///< options type
+  /// Error model of the conditioning analysis: a cross-product state (squares the condition).
   static constexpr detail::ErrorModel errorModel = detail::ErrorModel::online_gram;
-  static constexpr EstimatorKind kind = EstimatorKind::normal_equations;
+  static constexpr EstimatorKind kind = EstimatorKind::normal_equations;  ///< snapshot image kind
 
+  /// Fixed K. status() reports invalid options; see EstimatorBase::status().
   explicit NormalEquations(const Options& options = Options())
       : NormalEquations(K_ == Eigen::Dynamic ? 0 : K_, options) {}
+  /// Runtime K (any K > 0 for Eigen::Dynamic; must equal K otherwise, else status() is
+  /// `wrong_size`). Allocates the co-moment matrix for Eigen::Dynamic K, nothing later.
   NormalEquations(Eigen::Index k, const Options& options)
       : Base(k, options), m_gram(k + 1, k + 1) {
     m_gram.setZero();
   }
 
-  /// The augmented co-moment matrix (lower triangle valid).
+  /// The augmented co-moment matrix G = [M m; m' Syy] ((K+1) x (K+1), lower triangle valid).
   const typename Dims::Matrix1& comoments() const { return m_gram; }
 
  private:
