@@ -105,8 +105,8 @@ class EstimatorBase {
   /// Folds one sample (x, y) with weight w >= 0. A zero weight is accepted and changes nothing.
   ///
   /// Math: ages the state by lambda and folds the scaled centered row
-  /// c [x - xbar, y - ybar], c = sqrt(w lambda W / (lambda W + w)) (Centering; NUMERICS §4.1-4.2),
-  /// by the estimator's own update (its class comment).
+  /// c [x - xbar, y - ybar], c = sqrt(w lambda W / (lambda W + w)) (Centering; NUMERICS §4.1-4.2;
+  /// sqrt(w) [x, y] with Intercept::none), by the estimator's own update (its class comment).
   ///
   /// Precondition: x is an Eigen expression of the estimator's Scalar (static_assert).
   ///
