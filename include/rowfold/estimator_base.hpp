@@ -44,7 +44,10 @@ namespace rowfold {
 /// Estimators may shadow `solveInto` with a cheaper path (back substitution, RLS theta).
 ///
 /// Allocation: fixed K allocates nothing, ever. Eigen::Dynamic K allocates in the constructor
-/// only. No member function throws.
+/// only, except for what a call returns or builds itself: the value forms solve(), summarize(),
+/// conditioning() allocate their result, and covariance()/correlation() a temporary K-vector
+/// (none of these with a bounded MaxK); the ...Into forms with results sized once never
+/// allocate. No member function throws.
 ///
 /// Threads: the const queries (solve, summarize, conditioning, predict) use scratch storage
 /// inside the object, so one estimator must not be queried from two threads at once; copies
