@@ -50,9 +50,11 @@ void writeFile(const fs::path& p, const std::string& text) {
 }
 
 /// Runs the tool in `dir` with `args` (shell syntax); stdout and stderr are captured outside it.
+/// In a cross build ROWFOLD_COMPARE_RUNNER is the emulator command (qemu-user), else empty.
 Run runTool(const fs::path& dir, const std::string& args) {
   const std::string base = dir.string();
-  const std::string cmd = "cd '" + base + "' && '" + std::string(ROWFOLD_COMPARE_EXE) + "' " + args + " >'" + base +
+  const std::string cmd = "cd '" + base + "' && " + std::string(ROWFOLD_COMPARE_RUNNER) + " '" +
+                          std::string(ROWFOLD_COMPARE_EXE) + "' " + args + " >'" + base +
                           ".stdout' 2>'" + base + ".stderr'";
   const int status = std::system(cmd.c_str());
   Run r;
