@@ -75,12 +75,14 @@ int parseCommandLine(int argc, char** argv, Settings& s) {
   app.add_option("-r,--response", s.response, "response column (name or number)")->required();
   app.add_option("-i,--inputs", s.inputs, "regressor columns, comma separated (names or numbers)")
       ->required()
-      ->delimiter(',');
+      ->delimiter(',')
+      ->allow_extra_args(false);
   app.add_option("-w,--weights", s.weights, "column of sample weights (>= 0); default: all rows weigh 1");
   app.add_flag("--no-intercept", [&s](std::int64_t) { s.intercept = false; }, "fit through the origin");
   app.add_option("-s,--solver", solverWords,
                  "BatchQr, GivensQr, NormalEquations, ForgettingRls or all; comma separated or repeated")
       ->delimiter(',')
+      ->allow_extra_args(false)
       ->default_str("all");
   app.add_option("-f,--forgetting", s.forgetting, "forgetting factor in (0, 1]; memory about 1/(1 - f) rows")
       ->check(CLI::Range(0.0, 1.0))
@@ -96,7 +98,8 @@ int parseCommandLine(int argc, char** argv, Settings& s) {
       ->check(CLI::IsMember({"skip", "stop"}))
       ->capture_default_str();
   app.add_option("--missing-words", s.missingWords, "more tokens that mean 'no value' (e.g. Bad,Shutdown)")
-      ->delimiter(',');
+      ->delimiter(',')
+      ->allow_extra_args(false);
   app.add_option("--json", s.jsonFile, "write the full result as JSON to this file");
   app.add_option("--trace", s.traceFile, "write coefficient trajectories (CSV) to this file");
   app.add_option("--plot", s.plotFile, "draw the trajectories and the prediction error as SVG to this file");

@@ -152,6 +152,18 @@ class BatchQr : public EstimatorBase<BatchQr<Scalar_, K_, Capacity_, MaxK_>, Sca
     ++m_n;
   }
 
+  Status canMerge(const BatchQr& other) const {
+    return room() < static_cast<std::uint64_t>(other.m_n) ? Status::capacity_full : Status::ok;
+  }
+  /// The other state's rows are appended after this state's: their ages follow from the order.
+  void mergeState(const BatchQr& other, Scalar, const Vector1&) {
+    const Eigen::Index n = other.m_n;
+    m_x.middleRows(m_n, n) = other.m_x.topRows(n);
+    m_y.segment(m_n, n) = other.m_y.head(n);
+    m_w.segment(m_n, n) = other.m_w.head(n);
+    m_n += n;
+  }
+
   /// omega_i = sqrt(w_i lambda^age).
   Scalar omega(Eigen::Index i) const {
     const Scalar lambda = this->lambda();

@@ -99,6 +99,49 @@ class Centering {
     ++m_count;
   }
 
+  /// Aging factor lambda^n applied to this state when `n` later samples are merged in
+  /// (1 when lambda = 1; may underflow to 0, which forgets the old state entirely).
+  static Scalar agingFactor(Scalar lambda, std::uint64_t n) {
+    if (lambda == Scalar(1)) return Scalar(1);
+    Scalar result = Scalar(1), base = lambda;
+    for (std::uint64_t e = n; e != 0; e >>= 1) {  // binary powering: exact for small n, O(log n)
+      if ((e & 1u) != 0) result *= base;
+      base *= base;
+    }
+    return result;
+  }
+
+  /// Correction row of the pairwise merge with a state `other` whose samples came after this
+  /// state's, this state aged by `age`: row = sqrt(Wa Wb / W) [xbar_b - xbar_a, ybar_b - ybar_a]
+  /// with Wa = age W_this (Chan, Golub & LeVeque 1979, factored form; NUMERICS §4.1, §5).
+  /// Zero without intercept (no centering). Does not change the state.
+  void mergeRow(const Centering& other, Scalar age, Intercept mode, Vector1& row) const {
+    const Eigen::Index k = m_xbar.size();
+    row.setZero();
+    if (mode == Intercept::none) return;
+    const Scalar wa = age * m_weight, wb = other.m_weight, w = wa + wb;
+    if (!(w > Scalar(0))) return;
+    const Scalar c = std::sqrt(wa * (wb / w));
+    row.head(k) = c * (other.m_xbar - m_xbar);
+    row(k) = c * (other.m_ybar - m_ybar);
+  }
+
+  /// Commits the merge of `other` (see mergeRow; `row` is the correction row it produced).
+  void commitMerge(const Centering& other, Scalar age, Intercept mode, const Vector1& row) {
+    const Eigen::Index k = m_xbar.size();
+    const Scalar wa = age * m_weight, w = wa + other.m_weight;
+    if (mode == Intercept::fit && w > Scalar(0)) {
+      const Scalar share = other.m_weight / w;
+      m_xbar += share * (other.m_xbar - m_xbar);
+      m_ybar += share * (other.m_ybar - m_ybar);
+    }
+    m_syy = age * m_syy + other.m_syy + row(k) * row(k);
+    m_weight = w;
+    m_forget = age * m_forget + other.m_forget;
+    m_forget2 = age * age * m_forget2 + other.m_forget2;
+    m_count += other.m_count;
+  }
+
   /// Visits every state field in a fixed order (snapshot/restore; Self may be const).
   template <typename Self, typename V>
   static void visitState(Self& self, V& v) {

@@ -5,6 +5,7 @@
 #include <cmath>
 #include <limits>
 
+#include "rowfold/detail/givens.hpp"
 #include "rowfold/estimator_base.hpp"
 
 namespace rowfold {
@@ -124,14 +125,18 @@ class GivensQr : public EstimatorBase<GivensQr<Scalar_, K_, MaxK_>, Scalar_, K_,
     }
   }
 
-  static Scalar safeHypot(Scalar a, Scalar b) {
-    using std::abs;
-    const Scalar aa = abs(a), ab = abs(b);
-    const Scalar big = aa > ab ? aa : ab, small = aa > ab ? ab : aa;
-    if (big == Scalar(0)) return Scalar(0);
-    const Scalar t = small / big;
-    return big * std::sqrt(Scalar(1) + t * t);
+  Status canMerge(const GivensQr&) const { return Status::ok; }
+
+  /// Stacked-factor merge (detail::mergeFactorInto): this factor aged by sqrt(age), then the
+  /// other factor's rows and the centering correction row rotated in.
+  void mergeState(const GivensQr& other, Scalar age, const Vector1& correction) {
+    if (age != Scalar(1)) m_factor.template triangularView<Eigen::Upper>() *= std::sqrt(age);
+    Vector1& extra = this->work().v1aug;
+    extra = correction;
+    detail::mergeFactorInto(m_factor, other.m_factor, extra, m_row);
   }
+
+  static Scalar safeHypot(Scalar a, Scalar b) { return detail::safeHypot(a, b); }
 
   bool factorize(WorkspaceType& ws) const {
     const Eigen::Index k = this->regressors();
