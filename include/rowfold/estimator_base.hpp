@@ -164,15 +164,27 @@ class EstimatorBase {
   /// the merge is symmetric. Centered states combine with the pairwise formula of Chan, Golub &
   /// LeVeque (1979): the means are pooled and the row sqrt(Wa Wb / W) (mean_b - mean_a) is
   /// folded in with the other state (NUMERICS §4.1, §5). Each estimator combines its own form:
-  /// stacked-factor QR (GivensQr), added co-moments (NormalEquations), co-moments rebuilt from
-  /// P (ForgettingRls), appended rows (BatchQr).
+  /// stacked-factor QR, the TSQR step (Demmel, Grigori, Hoemmen & Langou 2012) of the augmented
+  /// factors (GivensQr; ForgettingRls on the factors of P^-1, then P = R^-1 R^-T again), added
+  /// co-moments (NormalEquations), appended rows (BatchQr).
   ///
-  /// Returns `state_mismatch` (other K, intercept mode, forgetting or estimator options, or
-  /// `other` is this very object),
-  /// `capacity_full` (BatchQr without room), `not_available` (ForgettingRls with a prior start,
-  /// whose prior would count twice) or the construction status; in all these cases the state
-  /// is untouched. Never allocates. Cost: that of folding K+2 rows (GivensQr O(K^3)),
-  /// O(K^2) (NormalEquations), O(K^3) (ForgettingRls), O(n K) (BatchQr).
+  /// Stability: the stacked-factor merge is as stable as Householder QR (NUMERICS §5); added
+  /// co-moments keep NormalEquations' squared condition number; BatchQr's row append is exact.
+  /// The result equals sequential folding up to rounding.
+  ///
+  /// Returns, checked in this order: this estimator's construction status if it is not `ok`;
+  /// `state_mismatch` (`other` has a non-`ok` status, is this very object, or has another K,
+  /// intercept mode or forgetting factor); `ok` with nothing done for an empty `other`; then
+  /// the estimator's own checks: `capacity_full` (BatchQr: fewer free rows than other.rows()),
+  /// `state_mismatch` (ForgettingRls: another start or priorPrecision), `not_available`
+  /// (ForgettingRls with a prior start, whose prior would count twice, or either state's P not
+  /// positive definite any more); otherwise `ok`. In every refusal
+  /// the state is untouched. The VIF limit and BatchQr's capacity and refinement options of
+  /// `other` are not compared: this estimator's are kept. Raises no flag itself; ForgettingRls
+  /// carries `lost_definiteness` over from `other`.
+  ///
+  /// Never allocates. Cost: GivensQr O(K^3) (rotating K+2 rows in), NormalEquations O(K^2),
+  /// ForgettingRls O(K^3), BatchQr O(n K) (n = other.rows()).
   Status merge(const Derived& other) {
     if (derived().status() != Status::ok) return derived().status();
     if (other.status() != Status::ok || &other == &derived()) return Status::state_mismatch;

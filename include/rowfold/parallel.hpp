@@ -62,6 +62,14 @@ Status addRowsParallelImpl(Estimator& est, const Eigen::MatrixBase<XD>& X, const
 /// same fit as sequential folding up to rounding, forgetting included. All-or-nothing like
 /// addRows: on any reject (the first failing block's Status) `est` is unchanged.
 /// Allocates one estimator copy per thread; small batches (< 8192 rows) are folded directly.
+///
+/// Preconditions: Estimator is a rowfold estimator (copyable); `threads` = 0 means 1. Returns
+/// `wrong_size` (y or w not of length X.rows()), else the first non-`ok` Status of the blocks'
+/// addRows (in block order) or of the merges (`capacity_full` when a BatchQr cannot hold the
+/// merged rows), else `ok`. Flags: none (as addRows). Stability: that of merge (stacked-factor
+/// QR for GivensQr; equal to sequential folding up to rounding). Cost: O(n K) validation and
+/// n updates spread over the threads, plus (threads - 1) merges and one estimator copy per
+/// thread; not for firmware (allocates, starts std::thread).
 template <typename Estimator, typename XD, typename YD>
 Status addRowsParallel(Estimator& est, const Eigen::MatrixBase<XD>& X, const Eigen::MatrixBase<YD>& y,
                        unsigned threads = std::thread::hardware_concurrency()) {

@@ -14,16 +14,18 @@ namespace rowfold {
 /// - `nonfinite_input`, `negative_weight`: `add`, `addRows`.
 /// - `wrong_size`: `status()` (k does not match K), `add`, `addRows`, `predictionInterval`,
 ///   `restore`.
-/// - `capacity_full`: `add`, `addRows` (BatchQr full, or an estimator whose own options are
-///   invalid).
+/// - `capacity_full`: `add`, `addRows`, `merge` (BatchQr full, or an estimator whose own options
+///   are invalid).
 /// - `invalid_options`: `validate`, `status()`, and the calls that check it first (`add`,
-///   `addRows`, `restore`).
+///   `addRows`, `restore`, `merge`).
 /// - `empty`, `not_available`: the queries `solveInto`, `summarizeInto`, `conditioningInto`,
 ///   `predictionInterval`, `crossProducts`, `covariance`, `correlation` (`not_available` when the
 ///   state gives no finite factor; the flags say why).
 /// - `buffer_too_small`: `snapshot`. `corrupt_image`, `image_mismatch`: `restore`.
-/// - `outlier`, `not_definite`, `state_mismatch`: reserved for the outlier gate, downdating
-///   windows and merge; no call of this version returns them.
+/// - `state_mismatch`: `merge`; `not_available` also from `merge` (ForgettingRls).
+/// - `outlier`, `not_definite`: reserved for the outlier gate and downdating windows; no call of
+///   this version returns them.
+/// addRowsParallel returns what addRows and merge return.
 enum class Status : std::uint8_t {
   ok = 0,
   nonfinite_input,  ///< x or y holds NaN or Inf
