@@ -15,7 +15,6 @@
 /// error messages.
 #pragma once
 
-#include <cerrno>
 #include <cmath>
 #include <cstddef>
 #include <cstdint>
@@ -98,11 +97,12 @@ inline bool parseNumber(std::string_view t, double& value, std::string& why) {
       return false;
     }
   }
-  const std::string text(t);  // strtod needs a terminator
+  char text[208];  // strtod needs a terminator
+  t.copy(text, t.size());
+  text[t.size()] = '\0';
   char* end = nullptr;
-  errno = 0;
-  value = std::strtod(text.c_str(), &end);
-  if (t.empty() || end != text.c_str() + text.size()) {
+  value = std::strtod(text, &end);
+  if (t.empty() || end != text + t.size()) {
     why = quoteForMessage(t) + " is not a number";
     return false;
   }

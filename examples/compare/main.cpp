@@ -1,6 +1,7 @@
 // rowfold-compare: compares the rowfold solvers on a CSV file (see --help and the README).
 #include <cstdio>
 #include <exception>
+#include <iostream>
 #include <memory>
 
 #include "output_file.hpp"
@@ -10,6 +11,7 @@
 
 int main(int argc, char** argv) {
   using namespace rowfold_compare;
+  std::ios::sync_with_stdio(false);  // standard input is read through std::cin's buffer only
   Settings settings;
   const int status = parseCommandLine(argc, argv, settings);
   if (status >= 0) return status;

@@ -88,16 +88,14 @@ class RowParser {
  private:
   bool value(std::size_t j, const char* role, double& out) {
     const std::string_view text = m_reader.field(j);
-    const std::string where =
-        std::string(" in the ") + role + " column " + quoteForMessage(m_reader.names()[j]);
+    const auto where = [&] { return std::string(" in the ") + role + " column " + quoteForMessage(m_reader.names()[j]); };
     if (isMissingToken(text, m_settings.missingWords)) {
       if (m_settings.stopOnMissing)
         fail(m_file, {m_reader.line(), j + 1,
-                      "missing value " + quoteForMessage(text) + where + " (--on-missing stop)"});
+                      "missing value " + quoteForMessage(text) + where() + " (--on-missing stop)"});
       return false;
     }
-    std::string why;
-    if (!parseNumber(text, out, why)) fail(m_file, {m_reader.line(), j + 1, why + where});
+    if (!parseNumber(text, out, m_why)) fail(m_file, {m_reader.line(), j + 1, m_why + where()});
     return true;
   }
 
@@ -105,6 +103,7 @@ class RowParser {
   std::string m_file;
   const Columns& m_columns;
   const Settings& m_settings;
+  std::string m_why;
 };
 
 /// Folds the block into every solver and the reference. At a trace point the last row is

@@ -82,7 +82,8 @@ void TraceRecorder::thinIfFull() {
   // Keep every other point and double the stride: the points stay evenly spaced.
   for (PlotSeries& s : m_data.series) {
     std::size_t kept = 0;
-    for (std::size_t i = 0; i < s.points.size(); i += 2) s.points[kept++] = std::move(s.points[i]);
+    for (std::size_t i = 0; i < s.points.size(); i += 2, ++kept)
+      if (kept != i) s.points[kept] = std::move(s.points[i]);  // no self-move of point 0
     s.points.resize(kept);
   }
   m_stride *= 2;  // kept calls stay those with (call - 1) % stride == 0

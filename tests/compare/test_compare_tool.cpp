@@ -295,6 +295,23 @@ TEST_CASE("compare tool: --trace and --plot write trajectories and a well-formed
   CHECK(svg.find("prediction error") != std::string::npos);
 }
 
+TEST_CASE("compare tool: a long trace is thinned for the plot and stays well-formed") {
+  const fs::path d = caseDir("long_trace");
+  writeFile(d / "long.csv", "time,a,b,y\n" + exactRows(3000));  // invented, as above
+  const Run r = runTool(d, "long.csv -r y -i a,b -s givens,rls --every 1 --plot long.svg");
+  INFO(r.err);
+  REQUIRE(r.code == 0);
+  const std::string svg = slurp(d / "long.svg");
+  std::string root;
+  CHECK(wellFormedXml(svg, root));
+  // 3000 trace points per solver are thinned to at most TraceRecorder::kMaxPlotPoints (1200):
+  // one circle per kept point and solver in the prediction-error panel.
+  std::size_t circles = 0;
+  for (std::size_t p = svg.find("<circle"); p != std::string::npos; p = svg.find("<circle", p + 1)) ++circles;
+  CHECK(circles > 2 * 600);
+  CHECK(circles <= 2 * 1200);
+}
+
 TEST_CASE("compare tool: weights, no intercept, separator and BatchQr capacity") {
   const fs::path d = caseDir("options");
   // Invented: y = 3 a - 0.5 b exactly, through the origin; weights 0.5 to 2.
