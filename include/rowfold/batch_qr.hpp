@@ -53,8 +53,8 @@ struct BatchQrOptions : FitOptions {
 /// from the newest row of the window, whatever its slot in the buffer, and the solve takes the
 /// rows in arrival order, so it is bit-identical to that of a non-sliding state fed the same rows. count(), weightSum() and
 /// effectiveCount() (so every statistic) describe the rows in the window: n, W = sum w lambda^age,
-/// F = sum lambda^age, F2 = sum lambda^(2 age) over the window (F and F2 by position: relax() and
-/// advance() scale the stored weights, hence W, but not F and F2). `centering()` is the base
+/// F = sum lambda^age, F2 = sum lambda^(2 age) over the window (F and F2 by position: relax()
+/// scales the stored weights, hence W, but not F and F2). `centering()` is the base
 /// class's running record of every row ever folded and is not used by this estimator's fit.
 /// A snapshot holds the window's rows oldest first (restore puts them back in that order), so
 /// it equals the image of a non-sliding state fed exactly those rows, apart from the option
