@@ -41,8 +41,8 @@ const char* const kDescription =
 bool parseSolver(std::string word, std::vector<SolverKind>& out) {
   std::transform(word.begin(), word.end(), word.begin(), [](unsigned char c) { return std::tolower(c); });
   if (word == "all") {
-    for (SolverKind k : {SolverKind::batch_qr, SolverKind::givens_qr, SolverKind::normal_equations,
-                         SolverKind::forgetting_rls})
+    for (SolverKind k :
+         {SolverKind::batch_qr, SolverKind::givens_qr, SolverKind::normal_equations, SolverKind::forgetting_rls})
       if (std::find(out.begin(), out.end(), k) == out.end()) out.push_back(k);
     return true;
   }
@@ -78,7 +78,8 @@ int parseCommandLine(int argc, char** argv, Settings& s) {
       ->delimiter(',')
       ->allow_extra_args(false);
   app.add_option("-w,--weights", s.weights, "column of sample weights (>= 0); default: all rows weigh 1");
-  app.add_flag("--no-intercept", [&s](std::int64_t) { s.intercept = false; }, "fit through the origin");
+  app.add_flag(
+      "--no-intercept", [&s](std::int64_t) { s.intercept = false; }, "fit through the origin");
   app.add_option("-s,--solver", solverWords,
                  "BatchQr, GivensQr, NormalEquations, ForgettingRls or all; comma separated or repeated")
       ->delimiter(',')
@@ -106,8 +107,9 @@ int parseCommandLine(int argc, char** argv, Settings& s) {
   app.add_option("--every", s.every, "rows between trace/plot points")
       ->check(CLI::Range(std::uint64_t(1), std::uint64_t(1) << 62))
       ->capture_default_str();
-  app.add_flag("--no-progress", [&s](std::int64_t) { s.progress = false; },
-               "no progress line (it only appears when stderr is a terminal anyway)");
+  app.add_flag(
+      "--no-progress", [&s](std::int64_t) { s.progress = false; },
+      "no progress line (it only appears when stderr is a terminal anyway)");
 
   try {
     app.parse(argc, argv);
@@ -121,8 +123,8 @@ int parseCommandLine(int argc, char** argv, Settings& s) {
     if (solverWords.empty()) solverWords.push_back("all");
     for (const std::string& w : solverWords)
       if (!parseSolver(w, s.solvers))
-        throw CLI::ValidationError("--solver", "unknown solver '" + w +
-                                                   "' (BatchQr, GivensQr, NormalEquations, ForgettingRls, all)");
+        throw CLI::ValidationError(
+            "--solver", "unknown solver '" + w + "' (BatchQr, GivensQr, NormalEquations, ForgettingRls, all)");
   } catch (const CLI::ParseError& e) {
     return app.exit(e);
   }

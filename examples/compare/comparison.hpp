@@ -13,9 +13,9 @@ namespace rowfold_compare {
 
 /// Rows of the file as the reader saw them.
 struct RowCounts {
-  std::uint64_t dataLines = 0;       ///< non-blank lines after the header
-  std::uint64_t used = 0;            ///< rows given to the solvers
-  std::uint64_t skipped = 0;         ///< rows with a missing value in a chosen column
+  std::uint64_t dataLines = 0;  ///< non-blank lines after the header
+  std::uint64_t used = 0;       ///< rows given to the solvers
+  std::uint64_t skipped = 0;    ///< rows with a missing value in a chosen column
   std::uint64_t firstSkippedLine = 0;
 };
 
@@ -24,7 +24,7 @@ struct SolverOutcome {
   rowfold::Status status = rowfold::Status::empty;  ///< of summarize()
   Summary summary;
   std::uint64_t folded = 0, refused = 0;
-  rowfold::Status refusal = rowfold::Status::ok;    ///< why rows were refused (capacity_full)
+  rowfold::Status refusal = rowfold::Status::ok;  ///< why rows were refused (capacity_full)
   double nsPerSample = 0.0;
   /// |b - b_ref| / |b_ref| per term (intercept first when fitted); empty when not comparable.
   std::vector<double> deviation;

@@ -67,18 +67,24 @@ std::unique_ptr<Contender> makeContender(SolverKind kind, Eigen::Index k, const 
       o.capacity = static_cast<Eigen::Index>(s.capacity);
       return make<rowfold::BatchQr<double, D>>(kind, k, o, s);
     }
-    case SolverKind::givens_qr: return make<rowfold::GivensQr<double, D>>(kind, k, {}, s);
-    case SolverKind::normal_equations: return make<rowfold::NormalEquations<double, D>>(kind, k, {}, s);
-    case SolverKind::forgetting_rls: return make<rowfold::ForgettingRls<double, D>>(kind, k, {}, s);
+    case SolverKind::givens_qr:
+      return make<rowfold::GivensQr<double, D>>(kind, k, {}, s);
+    case SolverKind::normal_equations:
+      return make<rowfold::NormalEquations<double, D>>(kind, k, {}, s);
+    case SolverKind::forgetting_rls:
+      return make<rowfold::ForgettingRls<double, D>>(kind, k, {}, s);
   }
   return nullptr;
 }
 
-Reference::Reference(Eigen::Index k, const Settings& s) : m_fit(k, [&s] {
-  rowfold::GivensQrOptions o;
-  static_cast<rowfold::FitOptions&>(o) = fitOptions(s);
-  return o;
-}()), m_x(k) {}
+Reference::Reference(Eigen::Index k, const Settings& s)
+    : m_fit(k,
+            [&s] {
+              rowfold::GivensQrOptions o;
+              static_cast<rowfold::FitOptions&>(o) = fitOptions(s);
+              return o;
+            }()),
+      m_x(k) {}
 
 void Reference::fold(const Block& b) {
   for (Eigen::Index i = 0; i < b.rows; ++i) {
@@ -94,6 +100,8 @@ bool Reference::solve(Vector& coefficients, Scalar& intercept) const {
   return sol.status == rowfold::Status::ok;
 }
 
-int Reference::precisionBits() { return std::numeric_limits<Scalar>::digits; }
+int Reference::precisionBits() {
+  return std::numeric_limits<Scalar>::digits;
+}
 
 }  // namespace rowfold_compare

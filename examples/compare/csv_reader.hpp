@@ -59,7 +59,9 @@ inline std::string quoteForMessage(std::string_view text) {
 
 namespace detail {
 
-inline char lower(char c) { return (c >= 'A' && c <= 'Z') ? static_cast<char>(c - 'A' + 'a') : c; }
+inline char lower(char c) {
+  return (c >= 'A' && c <= 'Z') ? static_cast<char>(c - 'A' + 'a') : c;
+}
 
 inline bool sameWord(std::string_view a, std::string_view b) {
   if (a.size() != b.size()) return false;
@@ -282,9 +284,9 @@ inline bool findColumn(const std::vector<std::string>& names, const std::string&
                    std::to_string(names.size()) + (names.size() == 1 ? " column" : " columns")};
     return false;
   }
-  problem = {1, names.size() + 1,
-             std::string("missing column: no column named ") + quoteForMessage(token) + " for the " + role +
-                 " in the header"};
+  problem = {
+      1, names.size() + 1,
+      std::string("missing column: no column named ") + quoteForMessage(token) + " for the " + role + " in the header"};
   return false;
 }
 

@@ -8,7 +8,8 @@ namespace rowfold_compare {
 
 inline const char* flagSentence(rowfold::Flag f) {
   switch (f) {
-    case rowfold::Flag::none: return "No warning.";
+    case rowfold::Flag::none:
+      return "No warning.";
     case rowfold::Flag::ill_conditioned:
       return "The inputs are badly conditioned, so the standard errors, VIFs and digit estimates have "
              "only a few correct digits.";
@@ -39,11 +40,14 @@ inline const char* statusSentence(rowfold::Status s) {
   switch (s) {
     case rowfold::Status::capacity_full:
       return "Its row store was full (--capacity), so it did not see the rest of the file.";
-    case rowfold::Status::empty: return "No row reached it, so there is nothing to report.";
+    case rowfold::Status::empty:
+      return "No row reached it, so there is nothing to report.";
     case rowfold::Status::not_available:
       return "It could not form a fit from these rows (its factor is unusable).";
-    case rowfold::Status::invalid_options: return "It refused the options it was given.";
-    default: return rowfold::nameOf(s);
+    case rowfold::Status::invalid_options:
+      return "It refused the options it was given.";
+    default:
+      return rowfold::nameOf(s);
   }
 }
 

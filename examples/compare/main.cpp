@@ -24,7 +24,8 @@ int main(int argc, char** argv) {
       throw std::runtime_error("--trace and --plot need an online solver (GivensQr, NormalEquations or ForgettingRls)");
     const Comparison result = run(settings, [&](const Comparison& c) -> TraceRecorder* {
       if (!tracing) return nullptr;
-      trace = std::make_unique<TraceRecorder>(settings, c.terms(), "rowfold-compare: " + c.file + ", response " + c.response);
+      trace = std::make_unique<TraceRecorder>(settings, c.terms(),
+                                              "rowfold-compare: " + c.file + ", response " + c.response);
       return trace.get();
     });
     std::unique_ptr<OutputFile> json;

@@ -42,7 +42,8 @@ class OutputFile {
     const bool good = static_cast<bool>(m_out);
     m_out.close();
     if (!good || m_out.fail()) throw std::runtime_error("writing " + m_path + " failed");
-    if (std::rename(m_temp.c_str(), m_path.c_str()) != 0) throw std::runtime_error("cannot rename " + m_temp + " to " + m_path);
+    if (std::rename(m_temp.c_str(), m_path.c_str()) != 0)
+      throw std::runtime_error("cannot rename " + m_temp + " to " + m_path);
     m_committed = true;
   }
 

@@ -30,7 +30,8 @@ class Progress {
                    100.0 * static_cast<double>(bytes) / static_cast<double>(m_total),
                    static_cast<unsigned long long>(rows));
     else
-      std::fprintf(stderr, "\rrowfold-compare: %.1f MB, %llu rows ", bytes / 1e6, static_cast<unsigned long long>(rows));
+      std::fprintf(stderr, "\rrowfold-compare: %.1f MB, %llu rows ", bytes / 1e6,
+                   static_cast<unsigned long long>(rows));
     m_shown = true;
   }
 

@@ -41,12 +41,12 @@ json solverJson(const Comparison& c, const SolverOutcome& o) {
   j["sst"] = s.sst;
   j["effective_samples"] = s.effectiveCount;
   j["weight_sum"] = s.weightSum;
-  j["conditioning"] = {{"scaled_condition", s.conditioning.scaledCondition},
-                       {"gram_condition", s.conditioning.gramCondition},
-                       {"least_squares_condition", s.conditioning.lsCondition},
-                       {"rank", s.conditioning.rank},
-                       {"vif", std::vector<double>(s.conditioning.vif.data(),
-                                                   s.conditioning.vif.data() + s.conditioning.vif.size())}};
+  j["conditioning"] = {
+      {"scaled_condition", s.conditioning.scaledCondition},
+      {"gram_condition", s.conditioning.gramCondition},
+      {"least_squares_condition", s.conditioning.lsCondition},
+      {"rank", s.conditioning.rank},
+      {"vif", std::vector<double>(s.conditioning.vif.data(), s.conditioning.vif.data() + s.conditioning.vif.size())}};
   json flags = json::array();
   for (rowfold::Flag f : rowfold::kAllFlags)
     if (s.flags.has(f)) flags.push_back({{"flag", rowfold::nameOf(f)}, {"text", flagSentence(f)}});

@@ -86,16 +86,16 @@ void printTable(std::FILE* out, const Comparison& c) {
       return fmt("%.7g", v.estimate) + " (" + fmt("%.3g", v.standardError) + ")";
     });
   std::fprintf(out, "\n");
-  line(out, c, width, "residual SE", [](const SolverOutcome& o) { return fmt("%.6g", o.summary.residualStandardError); });
+  line(out, c, width, "residual SE",
+       [](const SolverOutcome& o) { return fmt("%.6g", o.summary.residualStandardError); });
   line(out, c, width, "R^2", [](const SolverOutcome& o) { return fmt("%.6f", o.summary.rSquared); });
   line(out, c, width, "rows folded", [](const SolverOutcome& o) { return std::to_string(o.folded); });
   line(out, c, width, "ns/sample", [](const SolverOutcome& o) { return fmt("%.1f", o.nsPerSample); });
   line(out, c, width, "deviation from reference", [](const SolverOutcome& o) { return fmt("%.2e", o.maxDeviation); });
   std::fprintf(out, "\nestimated correct digits\n");
   for (std::size_t t = 0; t < terms.size(); ++t)
-    line(out, c, width, terms[t], [&](const SolverOutcome& o) {
-      return fmt("%.1f", termValues(o.summary, c.intercept, t).digits);
-    });
+    line(out, c, width, terms[t],
+         [&](const SolverOutcome& o) { return fmt("%.1f", termValues(o.summary, c.intercept, t).digits); });
 
   std::fprintf(out, "\nwarnings:\n");
   printWarnings(out, c);

@@ -26,7 +26,9 @@ struct Columns {
   std::size_t weights = 0;
 };
 
-[[noreturn]] void fail(const std::string& file, const CsvProblem& p) { throw std::runtime_error(describe(file, p)); }
+[[noreturn]] void fail(const std::string& file, const CsvProblem& p) {
+  throw std::runtime_error(describe(file, p));
+}
 
 std::size_t resolve(const CsvReader& r, const std::string& file, const std::string& token, const char* role) {
   std::size_t index = 0;
@@ -42,8 +44,9 @@ Columns chooseColumns(const CsvReader& r, const std::string& file, const Setting
   auto unique = [&](std::size_t j, const char* role) {
     for (std::size_t u : used)
       if (u == j)
-        fail(file, {1, j + 1, std::string("column ") + quoteForMessage(r.names()[j]) + " is chosen twice (again as " +
-                                  role + ")"});
+        fail(file,
+             {1, j + 1,
+              std::string("column ") + quoteForMessage(r.names()[j]) + " is chosen twice (again as " + role + ")"});
     used.push_back(j);
   };
   for (const std::string& t : s.inputs) {
@@ -79,8 +82,8 @@ class RowParser {
       missing |= !value(m_columns.weights, "weights", w);
       if (!missing && !(w >= 0.0))
         fail(m_file, {m_reader.line(), m_columns.weights + 1,
-                      "negative weight " + quoteForMessage(m_reader.field(m_columns.weights)) + " in the weights column " +
-                          quoteForMessage(m_reader.names()[m_columns.weights])});
+                      "negative weight " + quoteForMessage(m_reader.field(m_columns.weights)) +
+                          " in the weights column " + quoteForMessage(m_reader.names()[m_columns.weights])});
     }
     return !missing;
   }
@@ -88,11 +91,13 @@ class RowParser {
  private:
   bool value(std::size_t j, const char* role, double& out) {
     const std::string_view text = m_reader.field(j);
-    const auto where = [&] { return std::string(" in the ") + role + " column " + quoteForMessage(m_reader.names()[j]); };
+    const auto where = [&] {
+      return std::string(" in the ") + role + " column " + quoteForMessage(m_reader.names()[j]);
+    };
     if (isMissingToken(text, m_settings.missingWords)) {
       if (m_settings.stopOnMissing)
-        fail(m_file, {m_reader.line(), j + 1,
-                      "missing value " + quoteForMessage(text) + where() + " (--on-missing stop)"});
+        fail(m_file,
+             {m_reader.line(), j + 1, "missing value " + quoteForMessage(text) + where() + " (--on-missing stop)"});
       return false;
     }
     if (!parseNumber(text, out, m_why)) fail(m_file, {m_reader.line(), j + 1, m_why + where()});
@@ -164,8 +169,8 @@ Comparison run(const Settings& s, const std::function<TraceRecorder*(const Compa
   for (SolverKind kind : s.solvers) {
     contenders.push_back(makeContender(kind, k, s));
     if (contenders.back()->status() != rowfold::Status::ok)
-      throw std::runtime_error(std::string(solverName(kind)) + " refused its options: " +
-                               rowfold::nameOf(contenders.back()->status()));
+      throw std::runtime_error(std::string(solverName(kind)) +
+                               " refused its options: " + rowfold::nameOf(contenders.back()->status()));
   }
   Reference reference(k, s);
   TraceRecorder* trace = startTrace(out);

@@ -92,8 +92,8 @@ void frame(std::ostream& o, const Axis& x, const Axis& y, const std::string& tit
     << "</text>\n";
   o << "<rect x=\"" << coord(x.pixLo) << "\" y=\"" << coord(y.pixHi) << "\" width=\"" << coord(x.pixHi - x.pixLo)
     << "\" height=\"" << coord(y.pixLo - y.pixHi) << "\" fill=\"none\" stroke=\"#444\"/>\n";
-  o << "<clipPath id=\"clip" << id << "\"><rect x=\"" << coord(x.pixLo) << "\" y=\"" << coord(y.pixHi)
-    << "\" width=\"" << coord(x.pixHi - x.pixLo) << "\" height=\"" << coord(y.pixLo - y.pixHi) << "\"/></clipPath>\n";
+  o << "<clipPath id=\"clip" << id << "\"><rect x=\"" << coord(x.pixLo) << "\" y=\"" << coord(y.pixHi) << "\" width=\""
+    << coord(x.pixHi - x.pixLo) << "\" height=\"" << coord(y.pixLo - y.pixHi) << "\"/></clipPath>\n";
   for (const Axis* a : {&y, &x}) {
     const double step = niceStep(a->hi - a->lo);
     if (!(step > 0) || !std::isfinite(step)) continue;
@@ -137,8 +137,10 @@ void polyline(std::ostream& o, const std::vector<std::pair<double, double>>& pts
 
 void termPanel(std::ostream& o, const PlotData& d, std::size_t t, const Axis& x, Axis y, int id) {
   double lo, hi, bandLo, bandHi;
-  rangeOf(d, [t](const PlotPoint& p) { return p.estimate[t]; }, lo, hi);
-  rangeOf(d, [t](const PlotPoint& p) { return 0.5 * (p.upper[t] - p.lower[t]); }, bandLo, bandHi);
+  rangeOf(
+      d, [t](const PlotPoint& p) { return p.estimate[t]; }, lo, hi);
+  rangeOf(
+      d, [t](const PlotPoint& p) { return 0.5 * (p.upper[t] - p.lower[t]); }, bandLo, bandHi);
   y.lo = lo - (std::isfinite(bandLo) ? bandLo : 0.0);
   y.hi = hi + (std::isfinite(bandLo) ? bandLo : 0.0);
   widen(y);
@@ -168,8 +170,10 @@ void termPanel(std::ostream& o, const PlotData& d, std::size_t t, const Axis& x,
 
 void errorPanel(std::ostream& o, const PlotData& d, const Axis& x, Axis y, int id) {
   double lo, hi, sLo, sHi;
-  rangeOf(d, [](const PlotPoint& p) { return p.predictionError; }, lo, hi);
-  rangeOf(d, [](const PlotPoint& p) { return 2.0 * p.residualSe; }, sLo, sHi);
+  rangeOf(
+      d, [](const PlotPoint& p) { return p.predictionError; }, lo, hi);
+  rangeOf(
+      d, [](const PlotPoint& p) { return 2.0 * p.residualSe; }, sLo, sHi);
   const double m = std::max({std::isfinite(lo) ? std::fabs(lo) : 0.0, std::isfinite(hi) ? std::fabs(hi) : 0.0,
                              std::isfinite(sHi) ? sHi : 0.0});
   y.lo = -m;

@@ -25,7 +25,9 @@ std::string csvName(const std::string& name) {
 }  // namespace
 
 TraceRecorder::TraceRecorder(const Settings& s, std::vector<std::string> terms, std::string title)
-    : m_intercept(s.intercept), m_level(s.level), m_summary(static_cast<Eigen::Index>(terms.size()) - (s.intercept ? 1 : 0)) {
+    : m_intercept(s.intercept),
+      m_level(s.level),
+      m_summary(static_cast<Eigen::Index>(terms.size()) - (s.intercept ? 1 : 0)) {
   m_data.title = std::move(title);
   m_data.terms = std::move(terms);
   m_data.level = s.level;

@@ -38,12 +38,14 @@ std::vector<std::vector<std::string>> readAll(const std::string& text, CsvProble
 TEST_CASE("csv reader: quoting, trimming, BOM, CR/LF and blank lines") {
   CsvProblem p;
   bool ok = false;
-  const auto rows = readAll("\xEF\xBB\xBF" "time, \"TI-101, tray\" ,y\r\n"
-                            "t1, 1.5 ,\"2\"\r\n"
-                            "\r\n"
-                            "   \n"
-                            "\"a \"\"b\"\"\",,3",
-                            p, ok);
+  const auto rows = readAll(
+      "\xEF\xBB\xBF"
+      "time, \"TI-101, tray\" ,y\r\n"
+      "t1, 1.5 ,\"2\"\r\n"
+      "\r\n"
+      "   \n"
+      "\"a \"\"b\"\"\",,3",
+      p, ok);
   REQUIRE(ok);
   REQUIRE(rows.size() == 3);
   CHECK(rows[0] == std::vector<std::string>{"time", "TI-101, tray", "y"});
@@ -85,8 +87,8 @@ TEST_CASE("csv reader: every problem names its line and column") {
     CHECK(p.line == c.line);
     CHECK(p.column == c.column);
     CHECK(p.what.find(c.words) != std::string::npos);
-    CHECK(rowfold_compare::describe("f.csv", p).find("f.csv, line " + std::to_string(c.line) + ", column " +
-                                                     std::to_string(c.column) + ": ") == 0);
+    CHECK(rowfold_compare::describe("f.csv", p)
+              .find("f.csv, line " + std::to_string(c.line) + ", column " + std::to_string(c.column) + ": ") == 0);
   }
 }
 

@@ -51,8 +51,7 @@ extern "C" int LLVMFuzzerTestOneInput(const std::uint8_t* data, std::size_t size
   const std::vector<std::string> extra{"bad", "--"};
   for (unsigned k = 0; k < 1 + (choice & 3u); ++k) {
     const unsigned pick = (choice >> (2 + k)) & 7u;
-    const std::string token =
-        (pick & 1u) != 0 ? reader.names()[pick % reader.names().size()] : std::to_string(pick);
+    const std::string token = (pick & 1u) != 0 ? reader.names()[pick % reader.names().size()] : std::to_string(pick);
     std::size_t index = 0;
     if (rowfold_compare::findColumn(reader.names(), token, "input", index, problem)) {
       require(index < reader.names().size());
