@@ -125,7 +125,8 @@ class BatchQr : public EstimatorBase<BatchQr<Scalar_, K_, Capacity_, MaxK_>, Sca
   Status status() const { return m_badOptions ? Status::invalid_options : Base::status(); }
   /// Rows the buffer holds (Capacity, or options.capacity for Eigen::Dynamic).
   Eigen::Index capacity() const { return m_capacity; }
-  /// Rows stored now (accepted samples of positive weight since the last reset).
+  /// Rows stored now (accepted samples of positive weight since the last reset; with `slide`,
+  /// the rows in the window, at most capacity()).
   Eigen::Index rows() const { return m_n; }
   /// True when the buffer is a sliding window (options.slide).
   bool sliding() const { return m_options.slide; }

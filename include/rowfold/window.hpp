@@ -78,15 +78,17 @@ class BlockWindow {
   static_assert(Blocks == Eigen::Dynamic || Blocks >= 1, "rowfold: Blocks must be positive or Eigen::Dynamic");
 
  public:
-  using Scalar = typename Estimator::Scalar;
-  using Options = typename Estimator::Options;
-  using SolutionType = typename Estimator::SolutionType;
-  using SummaryType = typename Estimator::SummaryType;
-  using ConditioningType = typename Estimator::ConditioningType;
-  using PredictionType = typename Estimator::PredictionType;
-  using Vector = typename Estimator::Vector;
-  static constexpr int K = Estimator::K;
+  using Scalar = typename Estimator::Scalar;  ///< the block estimator's Scalar
+  using Options = typename Estimator::Options;  ///< the block estimator's options (one set for every block)
+  using SolutionType = typename Estimator::SolutionType;  ///< result of solve
+  using SummaryType = typename Estimator::SummaryType;  ///< result of summarize
+  using ConditioningType = typename Estimator::ConditioningType;  ///< result of conditioning
+  using PredictionType = typename Estimator::PredictionType;  ///< result of predictionInterval
+  using Vector = typename Estimator::Vector;  ///< K-vector type
+  static constexpr int K = Estimator::K;  ///< regressors at compile time, or Eigen::Dynamic
+  /// Block states kept: B complete blocks + the filling one (Eigen::Dynamic with Blocks).
   static constexpr int Slots = Blocks == Eigen::Dynamic ? Eigen::Dynamic : Blocks + 1;
+  /// Ring of block states: inline (std::array) for a fixed Blocks, else a std::vector sized once.
   using Storage = std::conditional_t<Blocks == Eigen::Dynamic, std::vector<Estimator>, std::array<Estimator, (Slots > 0 ? Slots : 1)>>;
 
   /// Fixed K and fixed Blocks: the window of Blocks blocks of `blockRows` rows.
@@ -107,6 +109,7 @@ class BlockWindow {
 
   /// Construction outcome; anything but `ok` makes add refuse.
   Status status() const { return m_status; }
+  /// Number of regressors K.
   Eigen::Index regressors() const { return m_merged.regressors(); }
   /// B, the complete blocks kept.
   Eigen::Index blocks() const { return m_count; }
@@ -172,11 +175,18 @@ class BlockWindow {
     return m_scratch;
   }
 
+  /// Coefficients of the window fit: the block estimator's solveInto on window() (see
+  /// EstimatorBase::solveInto for the math, Status values and flags). Value form (allocates its
+  /// result for Eigen::Dynamic K).
   SolutionType solve() const {
     SolutionType s(regressors());
     solveInto(s);
     return s;
   }
+  /// Coefficients of the window fit into `out`. Returns the estimator's Status (`empty` for an
+  /// empty window), or `not_available` with zero coefficients and no flags when a block merge
+  /// was refused. Cost: building window() if rows arrived since the last query (one merge) +
+  /// the estimator's solve. Never allocates once `out` is sized.
   Status solveInto(SolutionType& out) const {
     const Estimator& e = window();
     if (m_buildStatus != Status::ok) {
@@ -189,32 +199,44 @@ class BlockWindow {
     }
     return e.solveInto(out);
   }
+  /// Full report of the window fit at confidence `level` (value form of summarizeInto).
   SummaryType summarize(Scalar level = Scalar(0.95)) const {
     SummaryType s(regressors());
     summarizeInto(s, level);
     return s;
   }
+  /// Full report of the window fit (EstimatorBase::summarizeInto on window(): statistics of
+  /// the rows in the window, with their forgetting weights). `not_available` (only out.status
+  /// written) when a block merge was refused. Cost: as solveInto + O(K^3).
   Status summarizeInto(SummaryType& out, Scalar level = Scalar(0.95)) const {
     const Estimator& e = window();
     if (m_buildStatus != Status::ok) return out.status = m_buildStatus;
     return e.summarizeInto(out, level);
   }
+  /// Conditioning of the window fit (value form of conditioningInto).
   ConditioningType conditioning() const {
     ConditioningType c(regressors());
     conditioningInto(c);
     return c;
   }
+  /// Conditioning of the window fit (EstimatorBase::conditioningInto on window()).
+  /// `not_available` (only out.status written) when a block merge was refused.
   Status conditioningInto(ConditioningType& out) const {
     const Estimator& e = window();
     if (m_buildStatus != Status::ok) return out.status = m_buildStatus;
     return e.conditioningInto(out);
   }
+  /// Point prediction of the window fit; quiet NaN when there is none (as
+  /// EstimatorBase::predict, and when a block merge was refused).
   template <typename XD>
   Scalar predict(const Eigen::MatrixBase<XD>& x0) const {
     const Estimator& e = window();
     if (m_buildStatus != Status::ok) return std::numeric_limits<Scalar>::quiet_NaN();
     return e.predict(x0);
   }
+  /// Prediction with confidence and prediction intervals from the window fit
+  /// (EstimatorBase::predictionInterval on window()); status `not_available` when a block merge
+  /// was refused.
   template <typename XD>
   PredictionType predictionInterval(const Eigen::MatrixBase<XD>& x0, Scalar level = Scalar(0.95)) const {
     const Estimator& e = window();
@@ -246,7 +268,8 @@ class BlockWindow {
   ///               each as a 4-byte length and the estimator's own snapshot image
   ///   end-4  4    CRC-32 of everything before it (native byte order, as snapshot.hpp)
   /// ```
-  /// `buffer_too_small` if it does not fit (nothing written). Never allocates.
+  /// `buffer_too_small` if it does not fit (nothing written), the construction status if it is
+  /// not `ok`, else `ok`. Never allocates. Cost: O(image size).
   Status snapshot(unsigned char* buffer, std::size_t capacity, std::size_t& written) const {
     written = 0;
     if (m_status != Status::ok) return m_status;
@@ -275,7 +298,9 @@ class BlockWindow {
   /// Restores a window written by snapshot() of a window with the same estimator, options, B
   /// and b. `corrupt_image` (truncated, damaged, inconsistent) or `image_mismatch` (another
   /// window or estimator): the window is untouched. Every block image is checked (restored into
-  /// a scratch state) before any block changes. Never allocates.
+  /// a scratch state) before any block changes; a block image's own refusal (EstimatorBase::restore)
+  /// is passed on. The construction status comes first if it is not `ok`. Never allocates.
+  /// Cost: O(length), each block image read twice.
   Status restore(const unsigned char* image, std::size_t length) {
     if (m_status != Status::ok) return m_status;
     if (image == nullptr || length < kHeader + 4 || std::memcmp(image, "RFBW", 4) != 0) return Status::corrupt_image;
