@@ -46,11 +46,21 @@ void* operator new(std::size_t n) {
   if (void* p = std::malloc(n ? n : 1)) return p;
   std::abort();
 }
-void* operator new[](std::size_t n) { return operator new(n); }
-void operator delete(void* p) noexcept { std::free(p); }
-void operator delete[](void* p) noexcept { std::free(p); }
-void operator delete(void* p, std::size_t) noexcept { std::free(p); }
-void operator delete[](void* p, std::size_t) noexcept { std::free(p); }
+void* operator new[](std::size_t n) {
+  return operator new(n);
+}
+void operator delete(void* p) noexcept {
+  std::free(p);
+}
+void operator delete[](void* p) noexcept {
+  std::free(p);
+}
+void operator delete(void* p, std::size_t) noexcept {
+  std::free(p);
+}
+void operator delete[](void* p, std::size_t) noexcept {
+  std::free(p);
+}
 
 namespace {
 
@@ -126,7 +136,7 @@ void feedNist(Est& est, const rowfold_test::NistDataset& ds) {
   }
 }
 
-const char* const kSets[] = {"Norris", "Pontius", "NoInt1", "NoInt2", "Filip", "Longley",
+const char* const kSets[] = {"Norris",   "Pontius",  "NoInt1",   "NoInt2",   "Filip",   "Longley",
                              "Wampler1", "Wampler2", "Wampler3", "Wampler4", "Wampler5"};
 // test_nist.cpp's BatchQr thresholds in double (the core issue's figures), same order.
 const double kBatchBeta[] = {13.5, 13, 14, 14, 7.3, 14, 13.5, 13, 13, 13, 13};
@@ -228,7 +238,8 @@ TEST_CASE("BatchQr slide: forgetting ages follow arrival order; statistics and i
     const auto ri = image(ring), fi = image(fresh);
     const std::size_t stateBytes = 8 + std::size_t(cap) * std::size_t(k + 2) * sizeof(double);
     REQUIRE(ri.size() == fi.size());
-    CHECK(std::equal(ri.end() - 4 - std::ptrdiff_t(stateBytes), ri.end() - 4, fi.end() - 4 - std::ptrdiff_t(stateBytes)));
+    CHECK(
+        std::equal(ri.end() - 4 - std::ptrdiff_t(stateBytes), ri.end() - 4, fi.end() - 4 - std::ptrdiff_t(stateBytes)));
     // Restored into another ring, it continues bit-identically.
     rowfold::BatchQr<double, Eigen::Dynamic> back(k, so);
     REQUIRE(back.restore(ri.data(), ri.size()) == Status::ok);
@@ -290,7 +301,8 @@ E freshFit(const std::vector<Vec<double>>& xs, const std::vector<double>& ys, st
            double lambda) {
   typename E::Options o;
   E e(xs[0].size(), o);
-  for (std::size_t t = from; t < to; ++t) REQUIRE(e.add(xs[t], ys[t], std::pow(lambda, double(to - 1 - t))) == Status::ok);
+  for (std::size_t t = from; t < to; ++t)
+    REQUIRE(e.add(xs[t], ys[t], std::pow(lambda, double(to - 1 - t))) == Status::ok);
   return e;
 }
 
@@ -345,8 +357,9 @@ void windowMatchesFresh(double lambda, double power) {
     }
   }
   const char* names[] = {"", "BatchQr", "GivensQr", "NormalEquations", "ForgettingRls"};
-  MESSAGE(std::string(names[int(E::kind)]) << " BlockWindow vs fresh fit, lambda " << lambda << ": worst |db|/|b| / (u kappa_s^"
-          << power << ") = " << worst << ", worst |db_j|/|b_j| / 10^-digits_j = " << worstDigits);
+  MESSAGE(std::string(names[int(E::kind)])
+          << " BlockWindow vs fresh fit, lambda " << lambda << ": worst |db|/|b| / (u kappa_s^" << power
+          << ") = " << worst << ", worst |db_j|/|b_j| / 10^-digits_j = " << worstDigits);
 }
 
 }  // namespace
@@ -391,9 +404,15 @@ TEST_CASE("BlockWindow: junk pushed out by a NIST StRD set gives its certified v
       REQUIRE(sum.status == Status::ok);
       return score(sum, ds);
     };
-    struct G { using type = rowfold::GivensQr<double, Eigen::Dynamic>; };
-    struct N { using type = rowfold::NormalEquations<double, Eigen::Dynamic>; };
-    struct R { using type = rowfold::ForgettingRls<double, Eigen::Dynamic>; };
+    struct G {
+      using type = rowfold::GivensQr<double, Eigen::Dynamic>;
+    };
+    struct N {
+      using type = rowfold::NormalEquations<double, Eigen::Dynamic>;
+    };
+    struct R {
+      using type = rowfold::ForgettingRls<double, Eigen::Dynamic>;
+    };
     const Lres g = run(G{}), n = run(N{}), r = run(R{});
     MESSAGE(set << " BlockWindow beta LRE: GivensQr " << g.beta << ", NormalEquations " << n.beta << ", ForgettingRls "
                 << r.beta << "; GivensQr sd " << g.sd << " resSd " << g.resSd << " R2 " << g.r2);
@@ -437,7 +456,8 @@ TEST_CASE("BlockWindow: rejected samples and refused options leave everything un
   CHECK(win.count() == 9u);
   // Options the window refuses.
   CHECK(rowfold::BlockWindow<G, 3>(0).status() == Status::invalid_options);
-  CHECK(rowfold::BlockWindow<rowfold::GivensQr<double, Eigen::Dynamic>>(2, 0, 4, {}).status() == Status::invalid_options);
+  CHECK(rowfold::BlockWindow<rowfold::GivensQr<double, Eigen::Dynamic>>(2, 0, 4, {}).status() ==
+        Status::invalid_options);
   CHECK(rowfold::BlockWindow<G, 3>(2, 4, 4, {}).status() == Status::wrong_size);
   rowfold::ForgettingRlsOptions prior;
   prior.start = rowfold::RlsStart::prior;
