@@ -62,19 +62,19 @@ struct BatchQrOptions : FitOptions {
 ///
 /// **Sliding window (`options.slide`):** the buffer is a ring; when it is full the oldest row is
 /// overwritten, so the fit is exactly the least-squares fit of the last `capacity` rows, solved
-/// from scratch (no downdating: nothing can lose definiteness, and the accuracy is that of a
-/// batch fit of those rows; NUMERICS §3). Under forgetting a row's age is its position counted
-/// from the newest row of the window, whatever its slot in the buffer, and the solve takes the
-/// rows in arrival order, so it is bit-identical to that of a non-sliding state fed the same rows. count(), weightSum() and
-/// effectiveCount() (so every statistic) describe the rows in the window: n, W = sum w lambda^age,
-/// F = sum lambda^age, F2 = sum lambda^(2 age) over the window (F and F2 by position: relax()
-/// scales the stored weights, hence W, but not F and F2). `centering()` is the base
-/// class's running record of every row ever folded and is not used by this estimator's fit.
-/// A snapshot holds the window's rows oldest first (restore puts them back in that order), so
-/// it equals the image of a non-sliding state fed exactly those rows, apart from the option
-/// byte and the centering record. `merge` folds the other state's rows in after this state's,
-/// oldest first, as if added one by one: the window keeps the last `capacity` of them (never
-/// capacity_full). Cost: add O(K) whether or not a row is dropped; merge O(n K).
+/// from scratch (no downdating: nothing can lose definiteness, and the accuracy is that of a batch
+/// fit of those rows; NUMERICS §3). Under forgetting a row's age is its position counted from the
+/// newest row of the window, whatever its slot in the buffer, and the solve takes the rows in
+/// arrival order, so it is bit-identical to that of a non-sliding state fed the same rows. count(),
+/// weightSum() and effectiveCount() (so every statistic) describe the rows in the window: n, W =
+/// sum w lambda^age, F = sum lambda^age, F2 = sum lambda^(2 age) over the window (F and F2 by
+/// position: relax() scales the stored weights, hence W, but not F and F2). `centering()` is the
+/// base class's running record of every row ever folded and is not used by this estimator's fit. A
+/// snapshot holds the window's rows oldest first (restore puts them back in that order), so it
+/// equals the image of a non-sliding state fed exactly those rows, apart from the option byte and
+/// the centering record. `merge` folds the other state's rows in after this state's, oldest first,
+/// as if added one by one: the window keeps the last `capacity` of them (never capacity_full).
+/// Cost: add O(K) whether or not a row is dropped; merge O(n K).
 template <typename Scalar_, int K_, int Capacity_ = Eigen::Dynamic, int MaxK_ = K_>
 class BatchQr : public EstimatorBase<BatchQr<Scalar_, K_, Capacity_, MaxK_>, Scalar_, K_, MaxK_> {
   using Base = EstimatorBase<BatchQr<Scalar_, K_, Capacity_, MaxK_>, Scalar_, K_, MaxK_>;

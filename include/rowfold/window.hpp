@@ -89,7 +89,8 @@ class BlockWindow {
   /// Block states kept: B complete blocks + the filling one (Eigen::Dynamic with Blocks).
   static constexpr int Slots = Blocks == Eigen::Dynamic ? Eigen::Dynamic : Blocks + 1;
   /// Ring of block states: inline (std::array) for a fixed Blocks, else a std::vector sized once.
-  using Storage = std::conditional_t<Blocks == Eigen::Dynamic, std::vector<Estimator>, std::array<Estimator, (Slots > 0 ? Slots : 1)>>;
+  using Storage = std::conditional_t<Blocks == Eigen::Dynamic, std::vector<Estimator>,
+                                     std::array<Estimator, (Slots > 0 ? Slots : 1)>>;
 
   /// Fixed K and fixed Blocks: the window of Blocks blocks of `blockRows` rows.
   explicit BlockWindow(Eigen::Index blockRows, const Options& options = Options())
@@ -97,8 +98,12 @@ class BlockWindow {
 
   /// Any K and Blocks (each must equal the compile-time value when that is fixed).
   BlockWindow(Eigen::Index k, Eigen::Index blocks, Eigen::Index blockRows, const Options& options)
-      : m_merged(k, options), m_scratch(k, options), m_probe(k, options), m_blocks(makeStorage(blocks)),
-        m_blockRows(blockRows), m_count(blocks) {
+      : m_merged(k, options),
+        m_scratch(k, options),
+        m_probe(k, options),
+        m_blocks(makeStorage(blocks)),
+        m_blockRows(blockRows),
+        m_count(blocks) {
     for (Estimator& b : m_blocks) b = m_merged;
     m_status = m_merged.status();
     if (m_status == Status::ok && (blocks < 1 || blockRows < 1)) m_status = Status::invalid_options;
@@ -328,7 +333,8 @@ class BlockWindow {
       }
       if (at != length - 4) return Status::corrupt_image;
     }
-    for (Eigen::Index i = static_cast<Eigen::Index>(live) + 1; i < slots(); ++i) m_blocks[static_cast<std::size_t>(i)].reset();
+    for (Eigen::Index i = static_cast<Eigen::Index>(live) + 1; i < slots(); ++i)
+      m_blocks[static_cast<std::size_t>(i)].reset();
     m_live = static_cast<Eigen::Index>(live);
     m_current = m_live;
     rebuildComplete();
@@ -381,7 +387,8 @@ class BlockWindow {
       return;
     }
     m_merged = block(-m_live);
-    for (Eigen::Index i = m_live - 1; i >= 1 && m_mergeStatus == Status::ok; --i) m_mergeStatus = m_merged.merge(block(-i));
+    for (Eigen::Index i = m_live - 1; i >= 1 && m_mergeStatus == Status::ok; --i)
+      m_mergeStatus = m_merged.merge(block(-i));
   }
 
   /// m_scratch = m_merged + the filling block.
@@ -420,9 +427,9 @@ class BlockWindow {
   Estimator m_probe;            ///< restore: checks each block image before anything changes
   Storage m_blocks;
   Eigen::Index m_blockRows;
-  Eigen::Index m_count;         ///< B
-  Eigen::Index m_current = 0;   ///< slot of the filling block
-  Eigen::Index m_live = 0;      ///< complete blocks in the window (0..B)
+  Eigen::Index m_count;        ///< B
+  Eigen::Index m_current = 0;  ///< slot of the filling block
+  Eigen::Index m_live = 0;     ///< complete blocks in the window (0..B)
   Status m_status = Status::ok;
   Status m_mergeStatus = Status::ok;
   mutable Status m_buildStatus = Status::ok;
