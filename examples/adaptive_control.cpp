@@ -391,11 +391,13 @@ void reportSteady(const SteadyFigures& f) {
 void checkSteady(const SteadyFigures& f) {
   const Watch& w = f.w;
   check(w.notOk == 0 && w.nonFinite == 0, "steady: every one of the 40000 float32 solves ok and finite");
-  // Held, hence bounded: with forgetting held the information of phase 1 stays, and the
-  // noise-level samples folded on top (each below 0.5 (1 - lambda) of it) can move the estimate
-  // only a little. 10 % of b_est and 0.02 on a_est are ~4 and ~10 standard errors of phase 1;
-  // phase 5 shows the estimate leaving such bounds by far when the information drains.
-  check(w.minB > 0.9 * f.bStart && w.maxB < 1.1 * f.bStart, "steady: b_est within 10 % of its start value throughout");
+  // Held, hence bounded: with forgetting held the information of phase 1 stays. The quiet
+  // samples are still folded (without forgetting), each with less than 0.5 (1 - lambda) of it,
+  // but over 400 T0 they add up to about as much again, and they come from the drifting plant,
+  // so b_est may creep (by up to ~9 % over 30 seeds we tried). 15 % of b_est and 0.02 on a_est
+  // (~5 and ~10 standard errors of phase 1) bound that; phase 5 shows the estimate leaving such
+  // bounds by far when the information drains.
+  check(w.minB > 0.85 * f.bStart && w.maxB < 1.15 * f.bStart, "steady: b_est within 15 % of its start value throughout");
   check(w.minA > f.aStart - 0.02 && w.maxA < f.aStart + 0.02, "steady: a_est within 0.02 of its start value throughout");
   check(w.lowExcitation > w.samples * 9 / 10, "steady: low_excitation on more than 90 % of the solves");
 }
@@ -451,25 +453,27 @@ void phaseSpike(Loop& l) {
   Status spikeStatus = Status::ok, nextStatus = Status::ok;
   while (l.t < kSpikeEnd) {
     const long t = l.t;
+    const unsigned long long rejectedBefore = counter(l, &rowfold::GuardCounters::rejectedInnovation);
     l.step(t == kSpikeAt ? kSpike : 0.0);
     naive.step(t == kSpikeAt ? kSpike : 0.0);
     clean.step(0.0);
-    if (t == kSpikeAt) spikeStatus = l.lastStatus, atSpike = counter(l, &rowfold::GuardCounters::rejectedInnovation) - before;
+    if (t == kSpikeAt) spikeStatus = l.lastStatus, atSpike = counter(l, &rowfold::GuardCounters::rejectedInnovation) - rejectedBefore;
     if (t == kSpikeAt + 1) nextStatus = l.lastStatus;
     worstGated = std::max(worstGated, double(std::abs(l.uPast[0] - clean.uPast[0])));
     worstNaive = std::max(worstNaive, double(std::abs(naive.uPast[0] - clean.uPast[0])));
     if (t >= kSpikeAt - 2 && t <= kSpikeAt + 3) printSpikeRow(t, l, clean, naive);
   }
-  std::printf("  rejectedInnovation rose by %llu at the spike (by %llu over the %ld samples shown: the others are\n"
-              "  refused noise values, which the clean copy refuses too)\n",
+  std::printf("  rejectedInnovation rose by %llu at the spike (by %llu over the %ld samples of the phase: the\n"
+              "  others are refused noise values, which the clean copy refuses too)\n",
               atSpike, counter(l, &rowfold::GuardCounters::rejectedInnovation) - before, kSpikeEnd - kSpikeAt + 3);
   std::printf("  largest valve difference from the clean loop: gated %.4f %%, naive %.2f %%\n", worstGated, worstNaive);
   check(spikeStatus == Status::outlier && atSpike == 1, "spike: the wild reading refused (Status::outlier, rejectedInnovation + 1)");
   check(nextStatus == Status::ok, "spike: the next sample (its regressor the substituted prediction) accepted");
   // The gated loop differs from the clean one only by the prediction error that replaced one
-  // reading (noise-sized, ~0.05 degC, times Kc (1 + 1/Ti) ~ 2 % per degC) and one sample fewer
-  // in the fit: ~0.1 %; 0.2 % is twice that. The naive loop moves the valve by tens of %.
-  check(worstGated < 0.2, "spike: the gated valve within 0.2 % of the clean loop's at every sample");
+  // reading (the process noise of that sample, sd 0.05 degC, times Kc (1 + 1/Ti) ~ 2 % per degC)
+  // and one sample fewer in the fit: 0.5 % allows a 5-sigma noise value. The naive loop moves
+  // the valve by tens of %.
+  check(worstGated < 0.5, "spike: the gated valve within 0.5 % of the clean loop's at every sample");
 }
 
 // ---- phase 5: the comparison ---------------------------------------------------------------------
@@ -489,28 +493,44 @@ Variant runVariant(bool windupGuard, double gate) {
   return v;
 }
 
+void printComparisonRow(const char* label, const SteadyFigures* const (&f)[3], double (*value)(const SteadyFigures&),
+                        const char* format) {
+  std::printf("  %-42s", label);
+  for (const SteadyFigures* s : f) std::printf(format, value(*s));
+  std::printf("\n");
+}
+
 void phaseComparison(const SteadyFigures& mainSteady, double mainRecovered) {
   std::printf("\nPhase 5: the same loop and noise with the default information gate (0.05) and with\n"
-              "windup.enabled = false (outlier gate on in all three), over the steady period:\n");
+              "windup.enabled = false (the outlier gate on in all three). Over the steady period:\n");
   const Variant def = runVariant(true, 0.05), off = runVariant(false, 0.05);
-  const SteadyFigures* f[3] = {&mainSteady, &def.steady, &off.steady};
-  std::printf("  %-40s %18s %18s %18s\n", "", "gate 0.5 (above)", "default gate", "guard off");
-  std::printf("  %-40s", "forgetting held on [% of samples]");
-  for (const SteadyFigures* s : f) std::printf(" %18.1f", s->w.share(long(s->held)));
-  std::printf("\n  %-40s", "b_est range (b fell 0.048 -> 0.029)");
+  const SteadyFigures* const f[3] = {&mainSteady, &def.steady, &off.steady};
+  std::printf("  %-42s %18s %18s %18s\n", "", "gate 0.5 (above)", "default gate 0.05", "guard off");
+  printComparisonRow("forgetting held [% of samples]", f, [](const SteadyFigures& s) { return s.w.share(long(s.held)); },
+                     " %18.1f");
+  std::printf("  b_est range (b fell %.4f -> %.4f)     ", trueGain(kTrackEnd), trueGain(kSteadyEnd - 1));
   for (const SteadyFigures* s : f) std::printf("   %7.4f..%7.4f", s->w.minB, s->w.maxB);
-  std::printf("\n  %-40s", "a_est range (a = 0.92)");
+  std::printf("\n  %-42s", "a_est range (a = 0.92)");
   for (const SteadyFigures* s : f) std::printf("   %7.4f..%7.4f", s->w.minA, s->w.maxA);
-  std::printf("\n  %-40s", "solves with flags [%]");
-  for (const SteadyFigures* s : f) std::printf(" %18.1f", s->w.share(s->w.flagged));
-  std::printf("\n  %-40s", "tuning kept (flags/implausible) [%]");
-  for (const SteadyFigures* s : f) std::printf(" %18.1f", s->w.share(s->keptTuning));
-  std::printf("\n  %-40s", "rms control error [degC]");
-  for (const SteadyFigures* s : f) std::printf(" %18.3f", s->w.rmsError());
-  std::printf("\n  %-40s", "largest valve move per sample [%]");
-  for (const SteadyFigures* s : f) std::printf(" %18.2f", s->w.maxValveMove);
-  std::printf("\n  %-40s %18.1f %18.1f %18.1f\n", "|b_est - b| 3 T0 after the move [% of b]", 100.0 * mainRecovered,
+  std::printf("\n");
+  printComparisonRow("solves with flags [%]", f, [](const SteadyFigures& s) { return s.w.share(s.w.flagged); }, " %18.1f");
+  printComparisonRow("estimate refused by the controller [%]", f,
+                     [](const SteadyFigures& s) { return s.w.share(s.keptTuning); }, " %18.1f");
+  printComparisonRow("rms control error [degC]", f, [](const SteadyFigures& s) { return s.w.rmsError(); }, " %18.3f");
+  printComparisonRow("largest valve move per sample [%]", f, [](const SteadyFigures& s) { return s.w.maxValveMove; },
+                     " %18.2f");
+  std::printf("  %-42s %18.1f %18.1f %18.1f\n", "|b_est - b| 3 T0 after the move [% of b]", 100.0 * mainRecovered,
               100.0 * def.recoveredB, 100.0 * off.recoveredB);
+  const Watch& d = def.steady.w;
+  const Watch& o = off.steady.w;
+  std::printf("  What it shows: with the default gate forgetting went on (held on %.1f %% of the samples), the\n"
+              "  information drained and b_est wandered over %.4f..%.4f. With the guard off b_est reached\n"
+              "  %.4f%s and a_est %.4f%s.\n"
+              "  The controller refused those estimates (flags, implausible or imprecise), so in this loop\n"
+              "  control did not suffer. After the quiet period the drained estimators have no stale\n"
+              "  information left and reconverge faster than the held one.\n",
+              d.share(long(def.steady.held)), d.minB, d.maxB, o.minB, o.minB <= 0.0 ? " (the wrong sign)" : "", o.maxA,
+              o.maxA >= 1.0 ? " (an unstable model)" : "");
 }
 
 }  // namespace
@@ -534,7 +554,7 @@ int main() {
               "noise; b keeps falling (30 %% of b_0 over the period).\n",
               kTrackEnd, kSteadyEnd - 1, (kSteadyEnd - kTrackEnd) / kMemory);
   std::printf("  %6s  %7s %7s %6s %6s  %7s %6s %6s  %s\n", "sample", "b", "b_est", "a_est", "c_est", "held", "floor",
-              "reject", "flags of the latest solve");
+              "reject", "flags of the latest solve (counters: guardCounters())");
   const std::uint64_t heap0 = g_heapAllocations;
   const SteadyFigures steady = runSteady(loop, true);
   reportSteady(steady);
