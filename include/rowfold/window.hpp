@@ -53,7 +53,8 @@ namespace rowfold {
 /// GivensQr and ForgettingRls, O(K^2) for NormalEquations). A query (solve, summarize,
 /// conditioning, predict, predictionInterval, weightSum, effectiveCount) after new rows merges
 /// the filling block into a copy of the merged complete blocks (one merge), then costs what the
-/// estimator's query costs. Memory: B + 3 estimator states.
+/// estimator's query costs. Memory: B + 4 estimator states (B + 1 blocks,
+/// the merged complete blocks, the window, a restore probe).
 ///
 /// **Allocation:** fixed K and fixed Blocks allocate nothing, ever (the states live inside the
 /// object); Eigen::Dynamic K or Blocks allocate in the constructor only. No exceptions.
