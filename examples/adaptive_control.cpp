@@ -53,6 +53,7 @@
 // tolerances are stated where they are checked. The control loop neither allocates (counted
 // below) nor throws.
 
+#include <algorithm>
 #include <array>
 #include <cmath>
 #include <cstdint>
@@ -294,7 +295,7 @@ unsigned long long counter(const Loop& l, std::uint64_t rowfold::GuardCounters::
 void phaseTracking(Loop& l) {
   std::printf("\nPhase 1: tracking (samples 0-%ld). Setpoint steps 55/45 degC every 150 samples. The gain\n"
               "b drifts down 20 %% (invented fouling) and drops by 25 %% at sample %ld (invented stuck steam\n"
-              "trap). Commissioning PI (Kc 0.5, Ti 15) until the first estimate without flags.\n",
+              "trap). Commissioning PI (Kc 0.5, Ti 15) until the controller accepts an estimate.\n",
               kTrackEnd - 1, kGainStepAt);
   printHeader();
   const long stepEnd = kGainStepAt + 5 * kMemory;  // the reconvergence checkpoint, 5 T0 after the step
@@ -551,10 +552,10 @@ int main() {
   phaseTracking(loop);
 
   std::printf("\nPhase 2: steady (samples %ld-%ld, %ld T0). Setpoint 50 degC, no excitation but the process\n"
-              "noise; b keeps falling (30 %% of b_0 over the period).\n",
+              "noise; b keeps falling (30 %% of b_0 over the period). held, floor, reject: guardCounters().\n",
               kTrackEnd, kSteadyEnd - 1, (kSteadyEnd - kTrackEnd) / kMemory);
   std::printf("  %6s  %7s %7s %6s %6s  %7s %6s %6s  %s\n", "sample", "b", "b_est", "a_est", "c_est", "held", "floor",
-              "reject", "flags of the latest solve (counters: guardCounters())");
+              "reject", "flags of the latest solve");
   const std::uint64_t heap0 = g_heapAllocations;
   const SteadyFigures steady = runSteady(loop, true);
   reportSteady(steady);
