@@ -38,13 +38,15 @@
 //
 // The information gate. The guard holds forgetting back on a sample whose information
 // h = phi' M^-1 phi is below informationGate (1 - lambda). This example sets 0.5 instead of the
-// default 0.05, because in a closed loop the quiet samples are not silent: after the last setpoint
-// move the forgotten means lag the new operating point for a few T0, and the process noise, fed
-// back by the controller, keeps exciting the model's dynamic direction. Such samples carry
-// h ~ 0.1-0.5 (1 - lambda), pass the default gate, and their forgetting (1 - lambda of the
-// information in every direction) drains the steady-state-gain direction that only setpoint moves
-// excite. A sample with h < 1 - lambda adds less than one forgetting step removes; 0.5 holds most
-// of those. Phase 5 shows the default gate and the guard switched off on the same loop.
+// default 0.05, because in a closed loop the quiet samples are not silent. The setpoint moves make
+// y_{t-1} and u_{t-3} move together, so the information is large along the steady-state-gain
+// direction and small across it; the process noise, fed back by the controller, keeps exciting
+// that weak (dynamic) direction (and after the last setpoint move the forgotten means lag the new
+// operating point for a few T0). Such samples carry h ~ 0.1-0.5 (1 - lambda), pass the default
+// gate, and their forgetting (1 - lambda of the information in every direction) drains the
+// steady-state-gain direction that only setpoint moves excite. A sample with h < 1 - lambda adds
+// less than one forgetting step removes; 0.5 holds most of those. Phase 5 shows the default gate
+// and the guard switched off on the same loop.
 //
 // Phases: 1 tracking (setpoint steps, drifting gain, the gain step); 2 a steady period of 40000
 // samples at a constant setpoint (no excitation but the process noise) while the gain keeps
