@@ -102,6 +102,7 @@ TEST_CASE_TEMPLATE("windup: 1e6 samples without excitation, then a step: bounded
                    rowfold::NormalEquations<double, 2>, rowfold::ForgettingRls<float, 2>,
                    rowfold::ForgettingRls<double, 2>) {
   const WindupRun r = windupScenario<E>(true, true, 1000000);
+  MESSAGE("worst |b - theta| while quiet " << r.worstDuringQuiet << ", after 3 T0 of the step " << r.afterStep);
   CHECK(r.healthy);
   CHECK(r.worstDuringQuiet < 0.05);  // the estimate stays where the excited data put it
   CHECK(r.lowExcitationSeen);
@@ -113,6 +114,7 @@ TEST_CASE_TEMPLATE("windup: one input parked for 1e6 samples: the spread floor h
                    rowfold::NormalEquations<double, 2>, rowfold::ForgettingRls<float, 2>,
                    rowfold::ForgettingRls<double, 2>) {
   const WindupRun r = windupScenario<E>(true, false, 1000000);
+  MESSAGE("worst |b - theta| while parked " << r.worstDuringQuiet << ", after 3 T0 of the step " << r.afterStep);
   CHECK(r.healthy);
   CHECK(r.worstDuringQuiet < 0.05);
   CHECK(r.windupGuardedSeen);

@@ -442,6 +442,8 @@ class EstimatorBase {
   /// Forgetting factor of the sample being folded (the windup guard may hold it at 1); the
   /// nominal lambda outside a fold.
   Scalar lambda() const { return m_step; }
+  /// The running means and sums, writable (for estimators that remove samples).
+  Centering<Scalar, K, MaxK>& centeringState() { return m_centering; }
   Intercept interceptMode() const { return m_fit.intercept; }
   WorkspaceType& work() const { return m_work; }
 

@@ -160,9 +160,7 @@ class GivensQr : public EstimatorBase<GivensQr<Scalar_, K_, MaxK_>, Scalar_, K_,
       }
     }
     m_factor(k, k) = rest2 > zero ? sqrt(rest2) : zero;
-    // Base keeps the centering private and offers it read-only; the object itself is not const.
-    auto& mutableCentering = const_cast<Centering<Scalar, K_, MaxK_>&>(centering);
-    mutableCentering.remove(x, y, w, this->interceptMode(), u, aged);
+    this->centeringState().remove(x, y, w, this->interceptMode(), u, aged);
     return Status::ok;
   }
 
