@@ -38,13 +38,15 @@
 //
 // The information gate. The guard holds forgetting back on a sample whose information
 // h = phi' M^-1 phi is below informationGate (1 - lambda). This example sets 0.5 instead of the
-// default 0.05, because in a closed loop the quiet samples are not silent: after the last setpoint
-// move the forgotten means lag the new operating point for a few T0, and the process noise, fed
-// back by the controller, keeps exciting the model's dynamic direction. Such samples carry
-// h ~ 0.1-0.5 (1 - lambda), pass the default gate, and their forgetting (1 - lambda of the
-// information in every direction) drains the steady-state-gain direction that only setpoint moves
-// excite. A sample with h < 1 - lambda adds less than one forgetting step removes; 0.5 holds most
-// of those. Phase 5 shows the default gate and the guard switched off on the same loop.
+// default 0.05, because in a closed loop the quiet samples are not silent. The setpoint moves make
+// y_{t-1} and u_{t-3} move together, so the information is large along the steady-state-gain
+// direction and small across it; the process noise, fed back by the controller, keeps exciting
+// that weak (dynamic) direction (and after the last setpoint move the forgotten means lag the new
+// operating point for a few T0). Such samples carry h ~ 0.1-0.5 (1 - lambda), pass the default
+// gate, and their forgetting (1 - lambda of the information in every direction) drains the
+// steady-state-gain direction that only setpoint moves excite. A sample with h < 1 - lambda adds
+// less than one forgetting step removes; 0.5 holds most of those. Phase 5 shows the default gate
+// and the guard switched off on the same loop.
 //
 // Phases: 1 tracking (setpoint steps, drifting gain, the gain step); 2 a steady period of 40000
 // samples at a constant setpoint (no excitation but the process noise) while the gain keeps
@@ -53,6 +55,7 @@
 // tolerances are stated where they are checked. The control loop neither allocates (counted
 // below) nor throws.
 
+#include <algorithm>
 #include <array>
 #include <cmath>
 #include <cstdint>
@@ -75,11 +78,21 @@ void* operator new(std::size_t n) {
   if (void* p = std::malloc(n ? n : 1)) return p;
   std::abort();
 }
-void* operator new[](std::size_t n) { return operator new(n); }
-void operator delete(void* p) noexcept { std::free(p); }
-void operator delete[](void* p) noexcept { std::free(p); }
-void operator delete(void* p, std::size_t) noexcept { std::free(p); }
-void operator delete[](void* p, std::size_t) noexcept { std::free(p); }
+void* operator new[](std::size_t n) {
+  return operator new(n);
+}
+void operator delete(void* p) noexcept {
+  std::free(p);
+}
+void operator delete[](void* p) noexcept {
+  std::free(p);
+}
+void operator delete(void* p, std::size_t) noexcept {
+  std::free(p);
+}
+void operator delete[](void* p, std::size_t) noexcept {
+  std::free(p);
+}
 
 namespace {
 
@@ -91,22 +104,22 @@ using Sol = Est::SolutionType;
 
 // ---- invented plant and schedule --------------------------------------------------------------
 
-constexpr int kDead = 3;                   // dead time d [samples]
-constexpr double kA = 0.92;                // true pole (time constant -1/ln a = 12 samples)
-constexpr double kC = (1.0 - kA) * 20.0;   // true intercept: feed water at 20 degC
-constexpr double kGain0 = 0.080;           // b at the start: static gain b/(1 - a) = 1 degC per %
-constexpr double kNoise = 0.05;            // equation-error standard deviation [degC]
-constexpr double kLambda = 0.99;           // forgetting factor
-constexpr double kInformationGate = 0.5;   // the library's default is 0.05 (see the header)
-constexpr long kMemory = 100;              // T0 = 1/(1 - lambda) samples
-constexpr long kTrackEnd = 6000;           // phase 1: samples [0, 6000)
-constexpr long kGainStepAt = 3075;         // the gain step, in the middle of a setpoint hold
-constexpr long kSteadyEnd = kTrackEnd + 40000;  // phase 2: 40000 samples = 400 T0
+constexpr int kDead = 3;                                 // dead time d [samples]
+constexpr double kA = 0.92;                              // true pole (time constant -1/ln a = 12 samples)
+constexpr double kC = (1.0 - kA) * 20.0;                 // true intercept: feed water at 20 degC
+constexpr double kGain0 = 0.080;                         // b at the start: static gain b/(1 - a) = 1 degC per %
+constexpr double kNoise = 0.05;                          // equation-error standard deviation [degC]
+constexpr double kLambda = 0.99;                         // forgetting factor
+constexpr double kInformationGate = 0.5;                 // the library's default is 0.05 (see the header)
+constexpr long kMemory = 100;                            // T0 = 1/(1 - lambda) samples
+constexpr long kTrackEnd = 6000;                         // phase 1: samples [0, 6000)
+constexpr long kGainStepAt = 3075;                       // the gain step, in the middle of a setpoint hold
+constexpr long kSteadyEnd = kTrackEnd + 40000;           // phase 2: 40000 samples = 400 T0
 constexpr long kRecoverEnd = kSteadyEnd + 10 * kMemory;  // phase 3: setpoint moves for 10 T0
-constexpr long kSpikeAt = kRecoverEnd + 200;  // phase 4: one wild reading at a constant setpoint
+constexpr long kSpikeAt = kRecoverEnd + 200;             // phase 4: one wild reading at a constant setpoint
 constexpr long kSpikeEnd = kRecoverEnd + 400;
-constexpr double kSpike = 40.0;            // the thermocouple glitch [degC] added to one reading
-constexpr int kMaxSubstitutions = 3;       // refused readings replaced by the prediction in a row
+constexpr double kSpike = 40.0;                // the thermocouple glitch [degC] added to one reading
+constexpr int kMaxSubstitutions = 3;           // refused readings replaced by the prediction in a row
 constexpr float kMinKp = 0.1f, kMaxKp = 3.0f;  // commissioning range of the process gain [degC/%]
 constexpr std::uint64_t kSeed = 20261202u;
 
@@ -185,7 +198,7 @@ struct Loop {
   int substitutedRun = 0;            // how many readings in a row were replaced by predictions
   bool trustGate = true;             // false: the controller uses raw readings (comparison only)
   long t = 0;
-  long keptTuning = 0;               // steps the controller refused the estimate
+  long keptTuning = 0;  // steps the controller refused the estimate
   // latest step, for the report
   Status lastStatus = Status::ok;
   float lastReading = 0.0f, lastPrediction = 0.0f;
@@ -203,8 +216,8 @@ struct Loop {
     yTrue = kA * yTrue + trueGain(t) * double(uPast[kDead - 1]) + kC + noise(rng);
     const float reading = float(yTrue + spike);
     const Reg x(yValid, uPast[kDead - 1]);
-    const float predicted = sol.status == Status::ok ? sol.intercept + x.dot(sol.coefficients)
-                                                     : std::numeric_limits<float>::quiet_NaN();
+    const float predicted =
+        sol.status == Status::ok ? sol.intercept + x.dot(sol.coefficients) : std::numeric_limits<float>::quiet_NaN();
     lastStatus = est.add(x, reading, sampleWeight());
     const bool substitute = trustGate && lastStatus == Status::outlier && std::isfinite(predicted) &&
                             est.guardCounters().consecutiveRejections <= std::uint64_t(kMaxSubstitutions);
@@ -262,7 +275,9 @@ void check(bool ok, const char* what) {
 double gainError(const Loop& l) {  // |b_est - b| / b, against the gain of the latest sample
   return std::abs(double(l.sol.coefficients(1)) - trueGain(l.t - 1)) / trueGain(l.t - 1);
 }
-double poleError(const Loop& l) { return std::abs(double(l.sol.coefficients(0)) - kA); }
+double poleError(const Loop& l) {
+  return std::abs(double(l.sol.coefficients(0)) - kA);
+}
 
 void printFlags(rowfold::Flags f) {
   if (!f.any()) std::printf(" none");
@@ -271,8 +286,8 @@ void printFlags(rowfold::Flags f) {
 }
 
 void printHeader() {
-  std::printf("  %6s  %6s %6s  %7s %7s %7s  %6s  %5s %5s  %s\n", "sample", "a", "a_est", "b", "b_est", "SE(b)",
-              "c_est", "Kc", "Ti", "flags of the latest solve");
+  std::printf("  %6s  %6s %6s  %7s %7s %7s  %6s  %5s %5s  %s\n", "sample", "a", "a_est", "b", "b_est", "SE(b)", "c_est",
+              "Kc", "Ti", "flags of the latest solve");
 }
 
 void printRow(const Loop& l) {
@@ -292,10 +307,11 @@ unsigned long long counter(const Loop& l, std::uint64_t rowfold::GuardCounters::
 // ---- phase 1: tracking ------------------------------------------------------------------------
 
 void phaseTracking(Loop& l) {
-  std::printf("\nPhase 1: tracking (samples 0-%ld). Setpoint steps 55/45 degC every 150 samples. The gain\n"
-              "b drifts down 20 %% (invented fouling) and drops by 25 %% at sample %ld (invented stuck steam\n"
-              "trap). Commissioning PI (Kc 0.5, Ti 15) until the first estimate without flags.\n",
-              kTrackEnd - 1, kGainStepAt);
+  std::printf(
+      "\nPhase 1: tracking (samples 0-%ld). Setpoint steps 55/45 degC every 150 samples. The gain\n"
+      "b drifts down 20 %% (invented fouling) and drops by 25 %% at sample %ld (invented stuck steam\n"
+      "trap). Commissioning PI (Kc 0.5, Ti 15) until the controller accepts an estimate.\n",
+      kTrackEnd - 1, kGainStepAt);
   printHeader();
   const long stepEnd = kGainStepAt + 5 * kMemory;  // the reconvergence checkpoint, 5 T0 after the step
   const long marks[] = {1000, 2000, 3000, kGainStepAt + 100, kGainStepAt + 300, stepEnd, 4000, 5000, 6000};
@@ -313,17 +329,20 @@ void phaseTracking(Loop& l) {
     printRow(l);
     if (mark == stepEnd) {
       stepA = poleError(l), stepB = gainError(l);
-      std::printf("          the gain step: %llu readings refused, %llu lock-out release, estimate refused by the\n"
-                  "          controller on %ld of the %ld samples since\n",
-                  counter(l, &rowfold::GuardCounters::rejectedInnovation) - refused0,
-                  counter(l, &rowfold::GuardCounters::lockoutReleases) - releases0, l.keptTuning - kept0,
-                  stepEnd - kGainStepAt);
+      std::printf(
+          "          the gain step: %llu readings refused, %llu lock-out release, estimate refused by the\n"
+          "          controller on %ld of the %ld samples since\n",
+          counter(l, &rowfold::GuardCounters::rejectedInnovation) - refused0,
+          counter(l, &rowfold::GuardCounters::lockoutReleases) - releases0, l.keptTuning - kept0,
+          stepEnd - kGainStepAt);
     }
-    if (mark < kGainStepAt || mark >= stepEnd) worstA = std::max(worstA, poleError(l)), worstB = std::max(worstB, gainError(l));
+    if (mark < kGainStepAt || mark >= stepEnd)
+      worstA = std::max(worstA, poleError(l)), worstB = std::max(worstB, gainError(l));
   }
-  std::printf("  worst at the checkpoints outside the 5 T0 after the step: |a_est - a| %.4f, |b_est - b| %.1f %% of b\n"
-              "  5 T0 after the step: |a_est - a| %.4f, |b_est - b| %.1f %% of b\n",
-              worstA, 100.0 * worstB, stepA, 100.0 * stepB);
+  std::printf(
+      "  worst at the checkpoints outside the 5 T0 after the step: |a_est - a| %.4f, |b_est - b| %.1f %% of b\n"
+      "  5 T0 after the step: |a_est - a| %.4f, |b_est - b| %.1f %% of b\n",
+      worstA, 100.0 * worstB, stepA, 100.0 * stepB);
   // Tolerances: 10 % of b and 0.01 on a. The error is noise plus lag. Noise: the estimator's own
   // standard error of b_est is 2-3 % of b here (column SE(b)), of a_est about 0.002, so the
   // bounds are ~4 and ~5 standard errors. Lag: forgetting weights data by lambda^age (mean age
@@ -377,35 +396,42 @@ SteadyFigures runSteady(Loop& l, bool print) {
 
 void reportSteady(const SteadyFigures& f) {
   const Watch& w = f.w;
-  std::printf("  over the %ld steady samples: forgetting held on %llu (%.1f %%), floor rows %llu; low_excitation\n"
-              "  on %.1f %% and windup_guarded on %.1f %% of the solves; the controller kept its tuning on\n"
-              "  %.1f %% of the samples; %llu readings refused (%.2f %%; the 3-sigma gate's Gaussian tail is 0.27 %%)\n",
-              w.samples, f.held, w.share(long(f.held)), f.floorRows, w.share(w.lowExcitation), w.share(w.guarded),
-              w.share(f.keptTuning), f.rejected, w.share(long(f.rejected)));
-  std::printf("  b_est stayed in [%.5f, %.5f] (%.5f at the start) while b fell from %.5f to %.5f;\n"
-              "  a_est in [%.4f, %.4f]; rms control error %.3f degC, largest valve move %.2f %% per sample\n",
-              w.minB, w.maxB, f.bStart, trueGain(kTrackEnd), trueGain(kSteadyEnd - 1), w.minA, w.maxA, w.rmsError(),
-              w.maxValveMove);
+  std::printf(
+      "  over the %ld steady samples: forgetting held on %llu (%.1f %%), floor rows %llu; low_excitation\n"
+      "  on %.1f %% and windup_guarded on %.1f %% of the solves; the controller kept its tuning on\n"
+      "  %.1f %% of the samples; %llu readings refused (%.2f %%; the 3-sigma gate's Gaussian tail is 0.27 %%)\n",
+      w.samples, f.held, w.share(long(f.held)), f.floorRows, w.share(w.lowExcitation), w.share(w.guarded),
+      w.share(f.keptTuning), f.rejected, w.share(long(f.rejected)));
+  std::printf(
+      "  b_est stayed in [%.5f, %.5f] (%.5f at the start) while b fell from %.5f to %.5f;\n"
+      "  a_est in [%.4f, %.4f]; rms control error %.3f degC, largest valve move %.2f %% per sample\n",
+      w.minB, w.maxB, f.bStart, trueGain(kTrackEnd), trueGain(kSteadyEnd - 1), w.minA, w.maxA, w.rmsError(),
+      w.maxValveMove);
 }
 
 void checkSteady(const SteadyFigures& f) {
   const Watch& w = f.w;
   check(w.notOk == 0 && w.nonFinite == 0, "steady: every one of the 40000 float32 solves ok and finite");
-  // Held, hence bounded: with forgetting held the information of phase 1 stays, and the
-  // noise-level samples folded on top (each below 0.5 (1 - lambda) of it) can move the estimate
-  // only a little. 10 % of b_est and 0.02 on a_est are ~4 and ~10 standard errors of phase 1;
-  // phase 5 shows the estimate leaving such bounds by far when the information drains.
-  check(w.minB > 0.9 * f.bStart && w.maxB < 1.1 * f.bStart, "steady: b_est within 10 % of its start value throughout");
-  check(w.minA > f.aStart - 0.02 && w.maxA < f.aStart + 0.02, "steady: a_est within 0.02 of its start value throughout");
+  // Held, hence bounded: with forgetting held the information of phase 1 stays. The quiet
+  // samples are still folded (without forgetting), each with less than 0.5 (1 - lambda) of it,
+  // but over 400 T0 they add up to about as much again, and they come from the drifting plant,
+  // so b_est may creep (by up to ~9 % over 30 seeds we tried). 15 % of b_est and 0.02 on a_est
+  // (~5 and ~10 standard errors of phase 1) bound that; phase 5 shows the estimate leaving such
+  // bounds by far when the information drains.
+  check(w.minB > 0.85 * f.bStart && w.maxB < 1.15 * f.bStart,
+        "steady: b_est within 15 % of its start value throughout");
+  check(w.minA > f.aStart - 0.02 && w.maxA < f.aStart + 0.02,
+        "steady: a_est within 0.02 of its start value throughout");
   check(w.lowExcitation > w.samples * 9 / 10, "steady: low_excitation on more than 90 % of the solves");
 }
 
 // ---- phase 3: recovery --------------------------------------------------------------------------
 
 double phaseRecovery(Loop& l) {
-  std::printf("\nPhase 3: the setpoint moves again (steps 55/45 from sample %ld). Before the first move the model\n"
-              "is %.1f %% off in b (the plant drifted while the data said nothing). Error of the model:\n",
-              kSteadyEnd, 100.0 * gainError(l));
+  std::printf(
+      "\nPhase 3: the setpoint moves again (steps 55/45 from sample %ld). Before the first move the model\n"
+      "is %.1f %% off in b (the plant drifted while the data said nothing). Error of the model:\n",
+      kSteadyEnd, 100.0 * gainError(l));
   printHeader();
   long lastBad = kSteadyEnd;  // last sample with |b_est - b| above 10 % of b
   double b3 = 1.0, a3 = 1.0;
@@ -415,8 +441,8 @@ double phaseRecovery(Loop& l) {
       if (gainError(l) > 0.10) lastBad = l.t;
     }
     printRow(l);
-    std::printf("          after %2ld T0: |b_est - b| = %4.1f %% of b, |a_est - a| = %.4f\n", mark, 100.0 * gainError(l),
-                poleError(l));
+    std::printf("          after %2ld T0: |b_est - b| = %4.1f %% of b, |a_est - a| = %.4f\n", mark,
+                100.0 * gainError(l), poleError(l));
     if (mark == 3) b3 = gainError(l), a3 = poleError(l);
   }
   std::printf("  b_est within 10 %% of b for good from sample %ld (%.2f T0 after the first move)\n", lastBad,
@@ -437,10 +463,11 @@ void printSpikeRow(long t, const Loop& gated, const Loop& clean, const Loop& nai
 }
 
 void phaseSpike(Loop& l) {
-  std::printf("\nPhase 4: one wild reading (+%.0f degC at sample %ld, setpoint 50). Three copies of the loop\n"
-              "run side by side from sample %ld: 'gated' (this loop), 'clean' (no spike) and 'naive' (the spike,\n"
-              "and a controller that uses the raw reading even when the gate refuses it).\n",
-              kSpike, kSpikeAt, kSpikeAt - 3);
+  std::printf(
+      "\nPhase 4: one wild reading (+%.0f degC at sample %ld, setpoint 50). Three copies of the loop\n"
+      "run side by side from sample %ld: 'gated' (this loop), 'clean' (no spike) and 'naive' (the spike,\n"
+      "and a controller that uses the raw reading even when the gate refuses it).\n",
+      kSpike, kSpikeAt, kSpikeAt - 3);
   runUntil(l, kSpikeAt - 3);
   Loop clean = l, naive = l;
   naive.trustGate = false;
@@ -451,25 +478,30 @@ void phaseSpike(Loop& l) {
   Status spikeStatus = Status::ok, nextStatus = Status::ok;
   while (l.t < kSpikeEnd) {
     const long t = l.t;
+    const unsigned long long rejectedBefore = counter(l, &rowfold::GuardCounters::rejectedInnovation);
     l.step(t == kSpikeAt ? kSpike : 0.0);
     naive.step(t == kSpikeAt ? kSpike : 0.0);
     clean.step(0.0);
-    if (t == kSpikeAt) spikeStatus = l.lastStatus, atSpike = counter(l, &rowfold::GuardCounters::rejectedInnovation) - before;
+    if (t == kSpikeAt)
+      spikeStatus = l.lastStatus, atSpike = counter(l, &rowfold::GuardCounters::rejectedInnovation) - rejectedBefore;
     if (t == kSpikeAt + 1) nextStatus = l.lastStatus;
     worstGated = std::max(worstGated, double(std::abs(l.uPast[0] - clean.uPast[0])));
     worstNaive = std::max(worstNaive, double(std::abs(naive.uPast[0] - clean.uPast[0])));
     if (t >= kSpikeAt - 2 && t <= kSpikeAt + 3) printSpikeRow(t, l, clean, naive);
   }
-  std::printf("  rejectedInnovation rose by %llu at the spike (by %llu over the %ld samples shown: the others are\n"
-              "  refused noise values, which the clean copy refuses too)\n",
-              atSpike, counter(l, &rowfold::GuardCounters::rejectedInnovation) - before, kSpikeEnd - kSpikeAt + 3);
+  std::printf(
+      "  rejectedInnovation rose by %llu at the spike (by %llu over the %ld samples of the phase: the\n"
+      "  others are refused noise values, which the clean copy refuses too)\n",
+      atSpike, counter(l, &rowfold::GuardCounters::rejectedInnovation) - before, kSpikeEnd - kSpikeAt + 3);
   std::printf("  largest valve difference from the clean loop: gated %.4f %%, naive %.2f %%\n", worstGated, worstNaive);
-  check(spikeStatus == Status::outlier && atSpike == 1, "spike: the wild reading refused (Status::outlier, rejectedInnovation + 1)");
+  check(spikeStatus == Status::outlier && atSpike == 1,
+        "spike: the wild reading refused (Status::outlier, rejectedInnovation + 1)");
   check(nextStatus == Status::ok, "spike: the next sample (its regressor the substituted prediction) accepted");
   // The gated loop differs from the clean one only by the prediction error that replaced one
-  // reading (noise-sized, ~0.05 degC, times Kc (1 + 1/Ti) ~ 2 % per degC) and one sample fewer
-  // in the fit: ~0.1 %; 0.2 % is twice that. The naive loop moves the valve by tens of %.
-  check(worstGated < 0.2, "spike: the gated valve within 0.2 % of the clean loop's at every sample");
+  // reading (the process noise of that sample, sd 0.05 degC, times Kc (1 + 1/Ti) ~ 2 % per degC)
+  // and one sample fewer in the fit: 0.5 % allows a 5-sigma noise value. The naive loop moves
+  // the valve by tens of %.
+  check(worstGated < 0.5, "spike: the gated valve within 0.5 % of the clean loop's at every sample");
 }
 
 // ---- phase 5: the comparison ---------------------------------------------------------------------
@@ -489,60 +521,84 @@ Variant runVariant(bool windupGuard, double gate) {
   return v;
 }
 
+void printComparisonRow(const char* label, const SteadyFigures* const (&f)[3], double (*value)(const SteadyFigures&),
+                        const char* format) {
+  std::printf("  %-42s", label);
+  for (const SteadyFigures* s : f) std::printf(format, value(*s));
+  std::printf("\n");
+}
+
 void phaseComparison(const SteadyFigures& mainSteady, double mainRecovered) {
-  std::printf("\nPhase 5: the same loop and noise with the default information gate (0.05) and with\n"
-              "windup.enabled = false (outlier gate on in all three), over the steady period:\n");
+  std::printf(
+      "\nPhase 5: the same loop and noise with the default information gate (0.05) and with\n"
+      "windup.enabled = false (the outlier gate on in all three). Over the steady period:\n");
   const Variant def = runVariant(true, 0.05), off = runVariant(false, 0.05);
-  const SteadyFigures* f[3] = {&mainSteady, &def.steady, &off.steady};
-  std::printf("  %-40s %18s %18s %18s\n", "", "gate 0.5 (above)", "default gate", "guard off");
-  std::printf("  %-40s", "forgetting held on [% of samples]");
-  for (const SteadyFigures* s : f) std::printf(" %18.1f", s->w.share(long(s->held)));
-  std::printf("\n  %-40s", "b_est range (b fell 0.048 -> 0.029)");
+  const SteadyFigures* const f[3] = {&mainSteady, &def.steady, &off.steady};
+  std::printf("  %-42s %18s %18s %18s\n", "", "gate 0.5 (above)", "default gate 0.05", "guard off");
+  printComparisonRow(
+      "forgetting held [% of samples]", f, [](const SteadyFigures& s) { return s.w.share(long(s.held)); }, " %18.1f");
+  std::printf("  b_est range (b fell %.4f -> %.4f)     ", trueGain(kTrackEnd), trueGain(kSteadyEnd - 1));
   for (const SteadyFigures* s : f) std::printf("   %7.4f..%7.4f", s->w.minB, s->w.maxB);
-  std::printf("\n  %-40s", "a_est range (a = 0.92)");
+  std::printf("\n  %-42s", "a_est range (a = 0.92)");
   for (const SteadyFigures* s : f) std::printf("   %7.4f..%7.4f", s->w.minA, s->w.maxA);
-  std::printf("\n  %-40s", "solves with flags [%]");
-  for (const SteadyFigures* s : f) std::printf(" %18.1f", s->w.share(s->w.flagged));
-  std::printf("\n  %-40s", "tuning kept (flags/implausible) [%]");
-  for (const SteadyFigures* s : f) std::printf(" %18.1f", s->w.share(s->keptTuning));
-  std::printf("\n  %-40s", "rms control error [degC]");
-  for (const SteadyFigures* s : f) std::printf(" %18.3f", s->w.rmsError());
-  std::printf("\n  %-40s", "largest valve move per sample [%]");
-  for (const SteadyFigures* s : f) std::printf(" %18.2f", s->w.maxValveMove);
-  std::printf("\n  %-40s %18.1f %18.1f %18.1f\n", "|b_est - b| 3 T0 after the move [% of b]", 100.0 * mainRecovered,
+  std::printf("\n");
+  printComparisonRow(
+      "solves with flags [%]", f, [](const SteadyFigures& s) { return s.w.share(s.w.flagged); }, " %18.1f");
+  printComparisonRow(
+      "estimate refused by the controller [%]", f, [](const SteadyFigures& s) { return s.w.share(s.keptTuning); },
+      " %18.1f");
+  printComparisonRow(
+      "rms control error [degC]", f, [](const SteadyFigures& s) { return s.w.rmsError(); }, " %18.3f");
+  printComparisonRow(
+      "largest valve move per sample [%]", f, [](const SteadyFigures& s) { return s.w.maxValveMove; }, " %18.2f");
+  std::printf("  %-42s %18.1f %18.1f %18.1f\n", "|b_est - b| 3 T0 after the move [% of b]", 100.0 * mainRecovered,
               100.0 * def.recoveredB, 100.0 * off.recoveredB);
+  const Watch& d = def.steady.w;
+  const Watch& o = off.steady.w;
+  std::printf(
+      "  What it shows: with the default gate forgetting went on (held on %.1f %% of the samples), the\n"
+      "  information drained and b_est wandered over %.4f..%.4f. With the guard off b_est reached\n"
+      "  %.4f%s and a_est %.4f%s.\n"
+      "  The controller refused those estimates (flags, implausible or imprecise), so in this loop\n"
+      "  control did not suffer. After the quiet period the drained estimators have no stale\n"
+      "  information left and reconverge faster than the held one.\n",
+      d.share(long(def.steady.held)), d.minB, d.maxB, o.minB, o.minB <= 0.0 ? " (the wrong sign)" : "", o.maxA,
+      o.maxA >= 1.0 ? " (an unstable model)" : "");
 }
 
 }  // namespace
 
 int main() {
   std::printf("rowfold adaptive-control example: a self-tuning PI loop on an INVENTED heat exchanger\n");
-  std::printf("NOTE: process, numbers and data are invented and simulated (std::mt19937_64, seed %llu).\n"
-              "Not a controller design for real plant; not safety-rated.\n",
-              static_cast<unsigned long long>(kSeed));
+  std::printf(
+      "NOTE: process, numbers and data are invented and simulated (std::mt19937_64, seed %llu).\n"
+      "Not a controller design for real plant; not safety-rated.\n",
+      static_cast<unsigned long long>(kSeed));
   std::printf("Invented truth: y_t = %.2f y_(t-1) + b_t u_(t-%d) + %.2f + noise (sd %.2f degC), b_0 = %.3f\n", kA,
               kDead, kC, kNoise, kGain0);
-  std::printf("Estimator: GivensQr<float, 2>, lambda = %.2f (T0 = %ld samples), windup guard (information gate\n"
-              "%.2f), outlier gate on. Controller: PI tuned from the estimate (IMC rule), valve clamped 0-100 %%.\n",
-              kLambda, kMemory, kInformationGate);
+  std::printf(
+      "Estimator: GivensQr<float, 2>, lambda = %.2f (T0 = %ld samples), windup guard (information gate\n"
+      "%.2f), outlier gate on. Controller: PI tuned from the estimate (IMC rule), valve clamped 0-100 %%.\n",
+      kLambda, kMemory, kInformationGate);
 
   Loop loop(estimatorOptions(true, kInformationGate));
   check(loop.est.status() == Status::ok, "estimator options accepted");
+  const std::uint64_t heap0 = g_heapAllocations;
   phaseTracking(loop);
 
-  std::printf("\nPhase 2: steady (samples %ld-%ld, %ld T0). Setpoint 50 degC, no excitation but the process\n"
-              "noise; b keeps falling (30 %% of b_0 over the period).\n",
-              kTrackEnd, kSteadyEnd - 1, (kSteadyEnd - kTrackEnd) / kMemory);
+  std::printf(
+      "\nPhase 2: steady (samples %ld-%ld, %ld T0). Setpoint 50 degC, no excitation but the process\n"
+      "noise; b keeps falling (30 %% of b_0 over the period). held, floor, reject: guardCounters().\n",
+      kTrackEnd, kSteadyEnd - 1, (kSteadyEnd - kTrackEnd) / kMemory);
   std::printf("  %6s  %7s %7s %6s %6s  %7s %6s %6s  %s\n", "sample", "b", "b_est", "a_est", "c_est", "held", "floor",
               "reject", "flags of the latest solve");
-  const std::uint64_t heap0 = g_heapAllocations;
   const SteadyFigures steady = runSteady(loop, true);
   reportSteady(steady);
   checkSteady(steady);
 
   const double recovered = phaseRecovery(loop);
   phaseSpike(loop);
-  check(g_heapAllocations == heap0, "no heap allocation in the control loop (phases 2-4)");
+  check(g_heapAllocations == heap0, "no heap allocation in the control loop (phases 1-4)");
   phaseComparison(steady, recovered);
 
   if (g_failures != 0) {

@@ -377,16 +377,19 @@ TEST_CASE("BlockWindow: the window fit equals a fresh fit of exactly the rows in
 
 TEST_CASE("BlockWindow: junk pushed out by a NIST StRD set gives its certified values") {
   // NIST certified values. Thresholds: test_merge.cpp's merged-state thresholds (the window is a
-  // merge of blocks) for GivensQr and NormalEquations; ForgettingRls has its own, below.
+  // merge of blocks) for GivensQr and NormalEquations. ForgettingRls: our measured values less
+  // one digit (measured, x86-64 g++ 12 -O3: Longley 13.2, Norris 12.1, Pontius 11.9, Wampler1
+  // 7.6; its blocks are merged through factors rebuilt from P, as in test_merge.cpp, with up to
+  // eight blocks here instead of three, so test_merge's Pontius figure of 12 is not reached).
   struct Case {
     const char* set;
     Eigen::Index blocks, rows;  // B b = n
     double givens, normal, rls;
   };
-  const Case cases[] = {{"Longley", 4, 4, 11, 10.5, 9.5},
-                        {"Norris", 6, 6, 11, 11, 10.5},
-                        {"Pontius", 8, 5, 10.5, 10, 10.5},
-                        {"Wampler1", 3, 7, 8, 5.5, 5.5}};
+  const Case cases[] = {{"Longley", 4, 4, 11, 10.5, 12.2},
+                        {"Norris", 6, 6, 11, 11, 11.1},
+                        {"Pontius", 8, 5, 10.5, 10, 10.9},
+                        {"Wampler1", 3, 7, 8, 5.5, 6.6}};
   for (const Case& c : cases) {
     const std::string set(c.set);
     CAPTURE(set);

@@ -74,7 +74,15 @@ void printTable(std::FILE* out, const Comparison& c) {
                static_cast<unsigned long long>(c.rows.skipped));
   if (c.rows.skipped > 0)
     std::fprintf(out, " (first at line %llu)", static_cast<unsigned long long>(c.rows.firstSkippedLine));
-  std::fprintf(out, "\nreference: GivensQr<long double> on the same rows, %d-bit significand%s\n\n", c.referenceBits,
+  if (c.window > 0)
+    std::fprintf(out,
+                 "\nwindow: the most recent rows only; BatchQr the last %lld, the others a block window of %lld blocks "
+                 "of %lld rows (%lld to %lld rows)",
+                 static_cast<long long>(c.windowBlocks * c.windowBlockRows), static_cast<long long>(c.windowBlocks),
+                 static_cast<long long>(c.windowBlockRows), static_cast<long long>(c.windowBlocks * c.windowBlockRows),
+                 static_cast<long long>((c.windowBlocks + 1) * c.windowBlockRows - 1));
+  std::fprintf(out, "\nreference: GivensQr<long double>%s on the same rows, %d-bit significand%s\n\n",
+               c.window > 0 ? " in the same block window" : "", c.referenceBits,
                c.referenceOk ? "" : " (no reference fit)");
 
   std::fprintf(out, "%-*s", width, "estimate (std. error)");
@@ -90,6 +98,7 @@ void printTable(std::FILE* out, const Comparison& c) {
        [](const SolverOutcome& o) { return fmt("%.6g", o.summary.residualStandardError); });
   line(out, c, width, "R^2", [](const SolverOutcome& o) { return fmt("%.6f", o.summary.rSquared); });
   line(out, c, width, "rows folded", [](const SolverOutcome& o) { return std::to_string(o.folded); });
+  line(out, c, width, "rows in the fit", [](const SolverOutcome& o) { return std::to_string(o.summary.count); });
   line(out, c, width, "ns/sample", [](const SolverOutcome& o) { return fmt("%.1f", o.nsPerSample); });
   line(out, c, width, "deviation from reference", [](const SolverOutcome& o) { return fmt("%.2e", o.maxDeviation); });
   std::fprintf(out, "\nestimated correct digits\n");

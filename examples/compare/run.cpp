@@ -163,6 +163,11 @@ Comparison run(const Settings& s, const std::function<TraceRecorder*(const Compa
   out.intercept = s.intercept;
   out.forgetting = s.forgetting;
   out.level = s.level;
+  if (s.window > 0) {
+    out.window = s.window;
+    out.windowBlocks = s.windowBlocks;
+    out.windowBlockRows = windowBlockRows(s);
+  }
 
   const auto k = static_cast<Eigen::Index>(columns.inputs.size());
   std::vector<std::unique_ptr<Contender>> contenders;

@@ -89,6 +89,11 @@ class BatchQr : public EstimatorBase<BatchQr<Scalar_, K_, Capacity_, MaxK_>, Sca
   /// Error model of the conditioning analysis: solved against the raw stored data.
   static constexpr detail::ErrorModel errorModel = detail::ErrorModel::refined_raw;
   static constexpr EstimatorKind kind = EstimatorKind::batch_qr;  ///< snapshot image kind
+  /// Ages are positional and the solve is a batch: no windup guard or outlier gate.
+  static constexpr bool guardable = false;
+  /// A row's age is its position: a late row would age the rows before it, so addDelayed and
+  /// advance refuse (not_available) under forgetting.
+  static constexpr bool positionalAges = true;
   /// Stored regressors, capacity x K (inline storage for a fixed Capacity and K).
   using RowMatrix = Eigen::Matrix<Scalar, Eigen::Dynamic, K_, Eigen::ColMajor, Capacity_, MaxK_>;
   /// A column of capacity entries (responses, weights, solve scratch).
@@ -232,6 +237,12 @@ class BatchQr : public EstimatorBase<BatchQr<Scalar_, K_, Capacity_, MaxK_>, Sca
     const Scalar denominator = power == 1 ? q : q * (Scalar(1) + lambda);
     return -std::expm1(p * n * std::log1p(-q)) / denominator;
   }
+
+  void ageState(Scalar f) { m_w.head(m_n) *= f; }
+  bool priorInfo(const Vector1&, Scalar&, Scalar&) const { return false; }
+  void ageResidual(Scalar) {}
+  template <typename VD>
+  bool currentSlopes(VD&) const { return false; }
 
   Status canMerge(const BatchQr& other) const {
     return room() < static_cast<std::uint64_t>(other.m_n) ? Status::capacity_full : Status::ok;

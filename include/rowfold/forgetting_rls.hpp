@@ -80,6 +80,8 @@ class ForgettingRls : public EstimatorBase<ForgettingRls<Scalar_, K_, MaxK_>, Sc
   /// Error model of the conditioning analysis: a cross-product state (squares the condition).
   static constexpr detail::ErrorModel errorModel = detail::ErrorModel::online_gram;
   static constexpr EstimatorKind kind = EstimatorKind::forgetting_rls;  ///< snapshot image kind
+  static constexpr bool guardable = true;  ///< the windup guard and outlier gate apply
+  static constexpr bool positionalAges = false;  // ages live in the state: addDelayed/advance are exact
 
   /// Fixed K. status() reports invalid options.
   explicit ForgettingRls(const Options& options = Options()) : ForgettingRls(K_ == Eigen::Dynamic ? 0 : K_, options) {}
@@ -183,6 +185,37 @@ class ForgettingRls : public EstimatorBase<ForgettingRls<Scalar_, K_, MaxK_>, Sc
     m_sse = lambda * m_sse + lambda * e * e / alpha;
     for (Eigen::Index i = 0; i < k; ++i)
       if (!(m_P(i, i) > Scalar(0))) m_lost = true;
+  }
+
+  void ageState(Scalar f) {
+    if (m_recursive) {
+      m_P.template triangularView<Eigen::Lower>() /= f;
+      m_sse *= f;
+    } else {
+      m_P.template triangularView<Eigen::Lower>() *= f;
+      m_theta *= f;
+    }
+  }
+
+  /// Forgets the residual sum only (P and theta kept).
+  void ageResidual(Scalar f) { m_sse *= f; }
+
+  template <typename VD>
+  bool currentSlopes(VD& b) const {
+    if (!m_recursive) return false;
+    b = m_theta;
+    return true;
+  }
+
+  /// h = phi'P phi and e = eta - phi'theta (O(K^2)); unknown before the exact start.
+  bool priorInfo(const Vector1& row, Scalar& h, Scalar& e) const {
+    if (!m_recursive) return false;
+    const Eigen::Index k = this->regressors();
+    auto& g = this->work().v1;
+    g.noalias() = m_P.template selfadjointView<Eigen::Lower>() * row.head(k);
+    h = row.head(k).dot(g);
+    e = row(k) - row.head(k).dot(m_theta);
+    return true;
   }
 
   /// Merging works on the augmented factors [R z; 0 rho] of both states (R'R = P^-1 after

@@ -68,6 +68,8 @@ class GivensQr : public EstimatorBase<GivensQr<Scalar_, K_, MaxK_>, Scalar_, K_,
   /// Error model of the conditioning analysis: orthogonal updates of online-centered rows.
   static constexpr detail::ErrorModel errorModel = detail::ErrorModel::online_qr;
   static constexpr EstimatorKind kind = EstimatorKind::givens_qr;  ///< snapshot image kind
+  static constexpr bool guardable = true;  ///< the windup guard and outlier gate apply
+  static constexpr bool positionalAges = false;  // ages live in the state: addDelayed/advance are exact
 
   /// Fixed K. status() reports invalid options; see EstimatorBase::status().
   explicit GivensQr(const Options& options = Options()) : GivensQr(K_ == Eigen::Dynamic ? 0 : K_, options) {}
@@ -168,9 +170,7 @@ class GivensQr : public EstimatorBase<GivensQr<Scalar_, K_, MaxK_>, Scalar_, K_,
       }
     }
     m_factor(k, k) = rest2 > zero ? sqrt(rest2) : zero;
-    // Base keeps the centering private and offers it read-only; the object itself is not const.
-    auto& mutableCentering = const_cast<Centering<Scalar, K_, MaxK_>&>(centering);
-    mutableCentering.remove(x, y, w, this->interceptMode(), u, aged);
+    this->centeringState().remove(x, y, w, this->interceptMode(), u, aged);
     return Status::ok;
   }
 
@@ -219,6 +219,35 @@ class GivensQr : public EstimatorBase<GivensQr<Scalar_, K_, MaxK_>, Scalar_, K_,
   }
 
   Status canMerge(const GivensQr&) const { return Status::ok; }
+
+  void ageState(Scalar f) { m_factor.template triangularView<Eigen::Upper>() *= std::sqrt(f); }
+  /// Forgets the residual only (rho, the last diagonal entry), keeping R and z.
+  void ageResidual(Scalar f) { m_factor(m_factor.rows() - 1, m_factor.cols() - 1) *= std::sqrt(f); }
+
+  /// Current slopes by back substitution (K^2/2); false if the factor is singular.
+  template <typename VD>
+  bool currentSlopes(VD& b) const {
+    const Eigen::Index k = this->regressors();
+    for (Eigen::Index i = 0; i < k; ++i)
+      if (!(m_factor(i, i) > Scalar(0))) return false;
+    b = m_factor.col(k).head(k);
+    detail::backSubstitute(m_factor.topLeftCorner(k, k), b, k);
+    return b.allFinite();
+  }
+
+  /// h = phi' M^-1 phi = |R^-T phi|^2 and the prediction error e = eta - phi'b = eta - u'z
+  /// (u = R^-T phi): one forward substitution, K^2/2 multiply-adds.
+  bool priorInfo(const Vector1& row, Scalar& h, Scalar& e) const {
+    const Eigen::Index k = this->regressors();
+    for (Eigen::Index i = 0; i < k; ++i)
+      if (!(m_factor(i, i) > Scalar(0))) return false;
+    auto& u = this->work().v1;
+    u = row.head(k);
+    detail::forwardSubstituteTransposed(m_factor.topLeftCorner(k, k), u);
+    h = u.squaredNorm();
+    e = row(k) - u.dot(m_factor.col(k).head(k));
+    return true;
+  }
 
   /// Stacked-factor merge (detail::mergeFactorInto): this factor aged by sqrt(age), then the
   /// other factor's rows and the centering correction row rotated in.

@@ -16,6 +16,9 @@
 #include <vector>
 
 #include "rowfold/estimator_base.hpp"
+#include "rowfold/forgetting_rls.hpp"
+#include "rowfold/givens_qr.hpp"
+#include "rowfold/normal_equations.hpp"
 #include "rowfold/snapshot.hpp"
 #include "rowfold/status.hpp"
 
@@ -50,7 +53,8 @@ namespace rowfold {
 /// GivensQr and ForgettingRls, O(K^2) for NormalEquations). A query (solve, summarize,
 /// conditioning, predict, predictionInterval, weightSum, effectiveCount) after new rows merges
 /// the filling block into a copy of the merged complete blocks (one merge), then costs what the
-/// estimator's query costs. Memory: B + 3 estimator states.
+/// estimator's query costs. Memory: B + 4 estimator states (B + 1 blocks,
+/// the merged complete blocks, the window, a restore probe).
 ///
 /// **Allocation:** fixed K and fixed Blocks allocate nothing, ever (the states live inside the
 /// object); Eigen::Dynamic K or Blocks allocate in the constructor only. No exceptions.
@@ -71,6 +75,8 @@ namespace rowfold {
 /// window continues bit-identically.
 ///
 /// Threads: queries use scratch states inside the object (one query at a time).
+///
+/// Includes the three estimator headers, so `#include <rowfold/window.hpp>` is enough to use it.
 template <typename Estimator, int Blocks = Eigen::Dynamic>
 class BlockWindow {
   static_assert(Estimator::kind != EstimatorKind::batch_qr,
@@ -109,7 +115,7 @@ class BlockWindow {
     if (m_status == Status::ok && (blocks < 1 || blockRows < 1)) m_status = Status::invalid_options;
     if (m_status == Status::ok && Blocks != Eigen::Dynamic && blocks != Blocks) m_status = Status::wrong_size;
     if constexpr (Estimator::kind == EstimatorKind::forgetting_rls)
-      if (m_status == Status::ok && options.start != decltype(options.start)::exact) m_status = Status::invalid_options;
+      if (m_status == Status::ok && options.start != RlsStart::exact) m_status = Status::invalid_options;
   }
 
   /// Construction outcome; anything but `ok` makes add refuse.
