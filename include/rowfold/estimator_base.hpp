@@ -165,6 +165,12 @@ class EstimatorBase {
   /// with weights w lambda^age, whatever the order; NUMERICS §4.1). The outlier gate applies;
   /// the windup guard never holds it back (no forgetting happens). Same Status as add();
   /// BatchQr under forgetting returns not_available (its ages are row positions).
+  ///
+  /// Precondition: the steps since the sample's own were marked by add() or advance(), so that
+  /// `age` counts them. A sample too old for lambda^age to be represented (underflow to 0) is
+  /// accepted with nothing folded (`ok`). Returns, in order: as add() up to `capacity_full`,
+  /// then `not_available` (BatchQr, lambda < 1), then `outlier` (gate), else `ok`. Cost: that of
+  /// add() plus O(log age) for lambda^age. Stability: that of add(). Never allocates.
   template <typename XD>
   Status addDelayed(const Eigen::MatrixBase<XD>& x, Scalar y, std::uint64_t age, Scalar w = Scalar(1)) {
     static_assert(std::is_same<typename XD::Scalar, Scalar>::value, "rowfold: x must have the estimator's Scalar");
@@ -183,7 +189,9 @@ class EstimatorBase {
   /// Marks `steps` sampling steps that passed without a sample (e.g. the sample of this step
   /// will arrive later through addDelayed): the state is aged by lambda^steps. Nothing happens
   /// with lambda = 1 or an empty state; BatchQr under forgetting returns not_available.
-  /// Never allocates.
+  /// Never allocates. Returns the construction status if it is not `ok`, `not_available`
+  /// (BatchQr, lambda < 1, non-empty) or `ok`. Cost: O(log steps) + scaling the state
+  /// (O(K^2); ForgettingRls divides P). Raises no flag.
   Status advance(std::uint64_t steps = 1) {
     if (derived().status() != Status::ok) return derived().status();
     if (m_lambda == Scalar(1) || steps == 0 || count() == 0) return Status::ok;
@@ -233,12 +241,13 @@ class EstimatorBase {
   ///
   /// Stability: the stacked-factor merge is as stable as Householder QR (NUMERICS §5); added
   /// co-moments keep NormalEquations' squared condition number; BatchQr's row append is exact.
-  /// The result equals sequential folding up to rounding.
+  /// Without guard-held steps (see above) the result equals sequential folding up to rounding.
   ///
   /// Returns, checked in this order: this estimator's construction status if it is not `ok`;
   /// `state_mismatch` (`other` has a non-`ok` status, is this very object, or has another K,
   /// intercept mode or forgetting factor); `ok` with nothing done for an empty `other`; then
-  /// the estimator's own checks: `capacity_full` (BatchQr: fewer free rows than other.rows()),
+  /// the estimator's own checks: `capacity_full` (non-sliding BatchQr: fewer free rows than
+  /// other.rows()),
   /// `state_mismatch` (ForgettingRls: another start or priorPrecision), `not_available`
   /// (ForgettingRls with a prior start, whose prior would count twice, or either state's P not
   /// positive definite any more); otherwise `ok`. In every refusal
@@ -284,6 +293,9 @@ class EstimatorBase {
   /// the guard's spreads; the estimate is unchanged): a soft covariance reset that makes the
   /// estimator alert again after a known change (Goodwin & Sin 1984 resetting, in
   /// information form). `invalid_options` for f outside (0, 1]; never allocates.
+  /// Returns the construction status if it is not `ok`, `invalid_options` or `ok`. Cost: O(K^2)
+  /// (BatchQr: O(n), it scales the stored weights). GivensQr scales R by sqrt(f) (exact up to
+  /// one rounding per entry); ForgettingRls divides P by f.
   Status relax(Scalar f) {
     if (derived().status() != Status::ok) return derived().status();
     if (!(f > Scalar(0) && f <= Scalar(1))) return Status::invalid_options;
@@ -293,6 +305,8 @@ class EstimatorBase {
 
   /// Sets theta0, the nominal slopes that regularized forgetting pulls unexcited directions
   /// toward (WindupOptions::regularization; NUMERICS §2.3: use the last validated model, not 0).
+  /// Returns `wrong_size` (theta0.size() != K), `nonfinite_input` or `ok`; O(K). The nominal
+  /// model is kept by reset(). Never allocates.
   template <typename VD>
   Status setNominal(const Eigen::MatrixBase<VD>& theta0) {
     if (theta0.size() != m_k) return Status::wrong_size;
@@ -301,7 +315,8 @@ class EstimatorBase {
     return Status::ok;
   }
 
-  /// What the windup guard and the outlier gate did (see GuardCounters).
+  /// What the windup guard and the outlier gate did since construction or reset() (see
+  /// GuardCounters). O(1).
   const GuardCounters& guardCounters() const { return m_counters; }
 
   /// Coefficients. Cost depends on the estimator (see its class comment). Value form of
@@ -684,9 +699,9 @@ class EstimatorBase {
   /// What the fit remembers: samples, W, F and F2. By default everything the centering has
   /// seen; an estimator with a finite window (samples leave it) shadows these four.
   std::uint64_t memoryCount() const { return m_centering.count(); }
-  Scalar memoryWeight() const { return m_centering.weightSum(); }
-  Scalar memoryForget() const { return m_centering.forgetSum(); }
-  Scalar memoryForget2() const { return m_centering.forgetSum2(); }
+  Scalar memoryWeight() const { return m_centering.weightSum(); }  ///< W remembered (see memoryCount)
+  Scalar memoryForget() const { return m_centering.forgetSum(); }  ///< F remembered (see memoryCount)
+  Scalar memoryForget2() const { return m_centering.forgetSum2(); }  ///< F2 remembered (see memoryCount)
 
   /// Default: the state has a fixed size, the one it has now.
   std::size_t expectedStateBytes(const unsigned char*, std::size_t) const {

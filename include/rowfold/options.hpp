@@ -16,7 +16,7 @@ enum class Intercept : std::uint8_t { fit, none };
 /// Windup protection of the forgetting estimators (GivensQr, NormalEquations, ForgettingRls;
 /// acts only when forgetting < 1). With lambda < 1, information in directions the data stop
 /// exciting decays like lambda^t until the factor under/overflows ("estimator windup", Åström &
-/// Wittenmark 1995 §11.2; NUMERICS §2). The default guard
+/// Wittenmark 1995 §11.2, section number from memory; NUMERICS §2). The default guard
 ///  - holds the forgetting of the slope information back when the sample carries little
 ///    information: h = phi' M^-1 phi < informationGate (1 - lambda), phi the scaled centered
 ///    regressors (conditional updating; Egardt 1979, Å&W 1995). The means, W and the residual
@@ -28,6 +28,8 @@ enum class Intercept : std::uint8_t { fit, none };
 /// Options add regularized forgetting toward a nominal model, the variable forgetting factor of
 /// Fortescue, Kershenbaum & Ydstie (1981) and relaxation on a change alarm (CUSUM).
 struct WindupOptions {
+  /// Guard on (default). It acts only when forgetting < 1, and only in GivensQr,
+  /// NormalEquations and ForgettingRls (BatchQr ignores it).
   bool enabled = true;
   /// Forget only when h >= informationGate (1 - lambda). A typical excited sample has
   /// h ~ K (1 - lambda); 0.05 keeps the gate far below that (our choice). 0 disables the gate.
@@ -44,11 +46,14 @@ struct WindupOptions {
   /// lambda_t = 1 - (1 - h/(1 + h)) q / (s^2 N0), N0 = 1/(1 - lambda), clamped to
   /// [minForgetting, 1]; q the normalized squared prediction error, s the robust running scale.
   bool variableForgetting = false;
+  /// Lower clamp of the variable forgetting factor, in (0, 1].
   double minForgetting = 0.9;
   /// > 0: CUSUM of normalized squared prediction errors, g = max(0, g + z^2 - 1 - changeDrift);
   /// when g exceeds changeThreshold the information is relaxed by changeRelax (see relax()).
   double changeThreshold = 0.0;
+  /// Drift subtracted from the CUSUM per sample (>= 0).
   double changeDrift = 1.0;
+  /// Factor f of relax() applied on a CUSUM alarm, in (0, 1].
   double changeRelax = 0.1;
 };
 
@@ -58,9 +63,11 @@ struct WindupOptions {
 /// (Status::outlier: state untouched, forgetting not advanced). Innovation gating as in
 /// Kalman-filter practice (Bar-Shalom, Li & Kirubarajan 2001). Not for BatchQr.
 struct OutlierOptions {
+  /// Gate off by default. Enabling it for BatchQr makes the construction status
+  /// `invalid_options`.
   bool enabled = false;
   /// c: reject |z| > c. 3 rejects 0.27 % of Gaussian samples (two-sided normal tail;
-  /// Abramowitz & Stegun 1964, table 26.1).
+  /// Abramowitz & Stegun 1964, table 26.1, from memory).
   double threshold = 3.0;
   /// > 0: also reject a sample whose regressors have leverage h_x above this (a bad input
   /// tag gives a small error but a large leverage). 0 disables it.
@@ -72,10 +79,12 @@ struct OutlierOptions {
   /// After this many consecutive rejections the next outlier is taken as a real change: it is
   /// accepted, s^2 restarts at its q and the information is relaxed by lockoutRelax.
   int lockoutLimit = 10;
+  /// Factor f of relax() applied at such a lock-out release, in (0, 1].
   double lockoutRelax = 0.1;
   /// Huber weighting of accepted samples: w <- w min(1, huberThreshold/|z|) (Huber 1964;
   /// 1.345 gives 95 % efficiency at the Gaussian).
   bool huber = false;
+  /// The Huber threshold (> 0), in units of the robust scale s.
   double huberThreshold = 1.345;
 };
 
@@ -91,13 +100,19 @@ struct FitOptions {
   double forgetting = 1.0;
   /// VIF above which `Flag::collinear` is raised (10 = common practice, Marquardt 1970).
   double vifLimit = 10.0;
+  /// Windup guard (on by default; acts only when forgetting < 1; not in BatchQr).
   WindupOptions windup;
+  /// Outlier gate (off by default; not for BatchQr).
   OutlierOptions outliers;
 };
 
 /// Checks the shared options; estimators call this from their constructors.
-/// Returns `invalid_options` unless 0 < forgetting <= 1, 1 <= vifLimit < inf and `intercept`
-/// is one of the enumerators; otherwise `ok`. O(1).
+/// Returns `invalid_options` unless 0 < forgetting <= 1, 1 <= vifLimit < inf, `intercept`
+/// is one of the enumerators, and the guard options are in range: informationGate,
+/// regularization, changeThreshold, changeDrift >= 0 and finite; 0 <= spreadFloor < 1;
+/// minForgetting, changeRelax, lockoutRelax in (0, 1]; threshold, huberThreshold > 0 and
+/// finite; leverageLimit >= 0 and finite; warmup, lockoutLimit >= 1; 1 <= scaleMemory < inf.
+/// Otherwise `ok`. O(1).
 inline Status validate(const FitOptions& o) noexcept {
   if (!(o.forgetting > 0.0 && o.forgetting <= 1.0)) return Status::invalid_options;
   if (!(o.vifLimit >= 1.0) || !std::isfinite(o.vifLimit)) return Status::invalid_options;

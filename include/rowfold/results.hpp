@@ -11,7 +11,8 @@
 namespace rowfold {
 
 /// Coefficients of a fit. `status` is `ok` or `empty`; `flags` may carry `rank_deficient`
-/// (dependent coefficients set to zero: the basic solution) or `too_few_samples`.
+/// (dependent coefficients set to zero: the basic solution) or `too_few_samples`, and the
+/// windup guard's `low_excitation` / `windup_guarded` for the last sample.
 /// `not_available` (with `near_singular`, and `lost_definiteness` from ForgettingRls) when the
 /// state gives no finite solution; the coefficients are then zero.
 template <typename Scalar, int K, int MaxK = K>
@@ -47,7 +48,7 @@ struct Conditioning {
   Vector digits;  ///< estimated correct significant digits per slope (NUMERICS §6.5; conservative)
   Scalar interceptDigits = 0;  ///< the same for the intercept
   Eigen::Index rank = 0;  ///< numerical rank (column-pivoted QR of R D^-1)
-  Flags flags;  ///< `rank_deficient`, `collinear`, `ill_conditioned`, `near_singular` (+ the estimator's own)
+  Flags flags;  ///< `rank_deficient`, `collinear`, `ill_conditioned`, `near_singular`, + estimator and guard flags
   Status status = Status::empty;  ///< `ok`, `empty` or `not_available`
 
   /// Zero-filled, for fixed K.
@@ -65,7 +66,7 @@ struct Summary {
   using Matrix = typename Dims::Matrix;  ///< K x K matrix type
 
   Status status = Status::empty;  ///< `ok`, `empty` or `not_available`
-  Flags flags;  ///< the conditioning flags, `too_few_samples` and the estimator's own (`lost_definiteness`)
+  Flags flags;  ///< the conditioning flags, `too_few_samples`, the estimator's own and the guard's
   Scalar level = Scalar(0.95);  ///< confidence level of the intervals
   ///@{
   /// Per slope: estimate b, standard error, t value b/SE, and the interval b -+ t_q SE at `level`.

@@ -11,20 +11,24 @@ namespace rowfold {
 /// other than `ok` has left the estimator state exactly as it was.
 ///
 /// Which call returns which value (details at each member function of EstimatorBase):
-/// - `nonfinite_input`, `negative_weight`: `add`, `addRows`.
-/// - `wrong_size`: `status()` (k does not match K), `add`, `addRows`, `predictionInterval`,
-///   `restore`.
+/// - `nonfinite_input`, `negative_weight`: `add`, `addDelayed`, `addRows`, GivensQr::remove
+///   (`nonfinite_input` also `setNominal`).
+/// - `wrong_size`: `status()` (k does not match K), `add`, `addDelayed`, `addRows`,
+///   `predictionInterval`, `restore`, `setNominal`, GivensQr::remove.
 /// - `capacity_full`: `add`, `addRows`, `merge` (BatchQr full, or an estimator whose own options
 ///   are invalid).
-/// - `invalid_options`: `validate`, `status()`, and the calls that check it first (`add`,
-///   `addRows`, `restore`, `merge`).
+/// - `invalid_options`: `validate`, `status()` (also: the outlier gate enabled for BatchQr),
+///   `relax` (factor outside (0, 1]), and the calls that check the status first (`add`,
+///   `addRows`, `restore`, `merge`, `advance`, ...).
 /// - `empty`, `not_available`: the queries `solveInto`, `summarizeInto`, `conditioningInto`,
 ///   `predictionInterval`, `crossProducts`, `covariance`, `correlation` (`not_available` when the
 ///   state gives no finite factor; the flags say why).
 /// - `buffer_too_small`: `snapshot`. `corrupt_image`, `image_mismatch`: `restore`.
-/// - `state_mismatch`: `merge`; `not_available` also from `merge` (ForgettingRls).
-/// - `outlier`, `not_definite`: reserved for the outlier gate and downdating windows; no call of
-///   this version returns them.
+/// - `state_mismatch`: `merge`; `not_available` also from `merge` (ForgettingRls) and from
+///   `addDelayed`/`advance` (BatchQr under forgetting).
+/// - `outlier`: `add`, `addDelayed` (and BlockWindow::add) when the outlier gate refuses the
+///   sample; `addRows` skips such rows instead.
+/// - `not_definite`: GivensQr::remove (the downdate would leave an indefinite factor).
 /// addRowsParallel returns what addRows and merge return.
 enum class Status : std::uint8_t {
   ok = 0,
@@ -72,7 +76,8 @@ constexpr const char* nameOf(Status s) noexcept {
 /// `ill_conditioned`, `near_singular` and `collinear` by the conditioning analysis
 /// (`conditioningInto`, `summarizeInto`), `near_singular` also with `not_available` when the factor
 /// is not finite; `lost_definiteness` by ForgettingRls only. `low_excitation` and
-/// `windup_guarded` are reserved for the windup guard and are not raised by this version.
+/// `windup_guarded` describe the last sample the windup guard saw (held forgetting; folded an
+/// information-floor row) and appear in `solveInto`, `summarizeInto` and `conditioningInto`.
 enum class Flag : std::uint16_t {
   none = 0,
   ill_conditioned = 1u << 0,   ///< scaled condition beyond u^-1/2: covariances/VIFs lose all digits
