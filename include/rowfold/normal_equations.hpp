@@ -23,6 +23,9 @@ struct NormalEquationsOptions : FitOptions {};
 /// inputs or float32 with kappa_s beyond ~1e2 (flags report it).
 ///
 /// **Cost:** add ~ (K+1)(K+2)/2 multiply-adds; solve O(K^3/6) (Cholesky) + K^2 (substitution).
+/// With the windup guard (on by default when lambda < 1) or the outlier gate, every add also
+/// factors the co-moments (O(K^3/6)) to get the sample's information and prediction error;
+/// turn the guard off (`windup.enabled = false`) or use GivensQr where that matters.
 /// Every query (solve, summarize, conditioning, predictionInterval, crossProducts) factors the
 /// co-moments again; summarize and conditioning add O(K^3). State: (K+1)^2 scalars (lower
 /// triangle used) + centering.
