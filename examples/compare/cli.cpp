@@ -97,7 +97,7 @@ int parseCommandLine(int argc, char** argv, Settings& s) {
   app.add_option("--level", s.level, "confidence level of the intervals, in (0, 1)")
       ->check(CLI::Range(0.0, 1.0))
       ->capture_default_str();
-  app.add_option("--capacity", s.capacity, "most rows BatchQr stores (it keeps every row in memory)")
+  app.add_option("--capacity", s.capacity, "most rows BatchQr stores (it keeps every row: about 16 (K + 3) bytes each)")
       ->check(CLI::Range(std::int64_t(1), std::int64_t(1) << 40))
       ->capture_default_str();
   app.add_option("--window", s.window, "fit only the most recent rows, about this many (see Windows above)")

@@ -8,6 +8,7 @@
 #include <cstring>
 #include <fstream>
 #include <iostream>
+#include <new>
 #include <stdexcept>
 
 #include "csv_reader.hpp"
@@ -172,7 +173,12 @@ Comparison run(const Settings& s, const std::function<TraceRecorder*(const Compa
   const auto k = static_cast<Eigen::Index>(columns.inputs.size());
   std::vector<std::unique_ptr<Contender>> contenders;
   for (SolverKind kind : s.solvers) {
-    contenders.push_back(makeContender(kind, k, s));
+    try {
+      contenders.push_back(makeContender(kind, k, s));
+    } catch (const std::bad_alloc&) {
+      throw std::runtime_error(std::string("not enough memory for ") + solverName(kind) +
+                               " (BatchQr stores --capacity or --window rows; choose fewer)");
+    }
     if (contenders.back()->status() != rowfold::Status::ok)
       throw std::runtime_error(std::string(solverName(kind)) +
                                " refused its options: " + rowfold::nameOf(contenders.back()->status()));
