@@ -111,6 +111,8 @@ class Centering {
   /// ```
   /// Without intercept row = sqrt(w) [x, y]. Returns false (row unspecified) when W' is not
   /// positive. Does not change the state; commit with remove() once the estimator accepted it.
+  /// O(K). Stability: a downdate; the subtraction can cancel when the sample carries most of
+  /// the weight (NUMERICS §3).
   template <typename XD>
   bool removalRow(const Eigen::MatrixBase<XD>& x, Scalar y, Scalar w, Intercept mode, Vector1& row) const {
     const Eigen::Index k = m_xbar.size();
@@ -130,7 +132,7 @@ class Centering {
 
   /// Commits the removal of a sample (see removalRow; `row` is the row it produced). `aged` is
   /// the sample's forgetting share lambda^age alone (sample weight excluded), which leaves F and
-  /// F2. Sums that rounding would push below zero are clamped at zero.
+  /// F2. Sums that rounding would push below zero are clamped at zero. O(K).
   template <typename XD>
   void remove(const Eigen::MatrixBase<XD>& x, Scalar y, Scalar w, Intercept mode, const Vector1& row, Scalar aged) {
     const Eigen::Index k = m_xbar.size();
@@ -153,6 +155,7 @@ class Centering {
 
   /// Aging factor lambda^n applied to this state when `n` later samples are merged in
   /// (1 when lambda = 1; may underflow to 0, which forgets the old state entirely).
+  /// Binary powering: O(log n) multiplications.
   static Scalar agingFactor(Scalar lambda, std::uint64_t n) {
     if (lambda == Scalar(1)) return Scalar(1);
     Scalar result = Scalar(1), base = lambda;
@@ -166,7 +169,7 @@ class Centering {
   /// Correction row of the pairwise merge with a state `other` whose samples came after this
   /// state's, this state aged by `age`: row = sqrt(Wa Wb / W) [xbar_b - xbar_a, ybar_b - ybar_a]
   /// with Wa = age W_this (Chan, Golub & LeVeque 1979, factored form; NUMERICS §4.1, §5).
-  /// Zero without intercept (no centering). Does not change the state.
+  /// Zero without intercept (no centering). Does not change the state. O(K).
   void mergeRow(const Centering& other, Scalar age, Intercept mode, Vector1& row) const {
     const Eigen::Index k = m_xbar.size();
     row.setZero();
@@ -178,7 +181,7 @@ class Centering {
     row(k) = c * (other.m_ybar - m_ybar);
   }
 
-  /// Commits the merge of `other` (see mergeRow; `row` is the correction row it produced).
+  /// Commits the merge of `other` (see mergeRow; `row` is the correction row it produced). O(K).
   void commitMerge(const Centering& other, Scalar age, Intercept mode, const Vector1& row) {
     const Eigen::Index k = m_xbar.size();
     const Scalar wa = age * m_weight, w = wa + other.m_weight;
@@ -194,7 +197,7 @@ class Centering {
     m_count += other.m_count;
   }
 
-  /// Multiplies the remembered weight by f (means unchanged): W, Syy and F by f, F2 by f^2.
+  /// Multiplies the remembered weight by f (means unchanged): W, Syy and F by f, F2 by f^2. O(1).
   void age(Scalar f) {
     m_weight *= f;
     m_syy *= f;
