@@ -109,8 +109,9 @@ void printTable(std::FILE* out, const Comparison& c) {
   std::fprintf(out, "\nwarnings:\n");
   printWarnings(out, c);
   std::fprintf(out,
-               "\n(standard errors and R^2 at level %g; deviation = largest relative difference of a coefficient "
-               "from the reference; ns/sample: time in add() only, varies from run to run)\n",
+               "\nnotes: intervals at level %g. deviation = largest relative difference of a coefficient from the\n"
+               "reference. ns/sample = time in add() only (BatchQr only stores the row there; its QR runs at\n"
+               "solve time); it varies from run to run.\n",
                c.level);
 }
 
