@@ -77,7 +77,7 @@ std::string exactRows(int n, int firstIndex = 0) {
 }
 
 /// A fresh case directory `name` holding `file` with `text`; runs the tool there with `args`
-/// and requires success.
+/// and requires success with nothing on stderr.
 Run runOk(fs::path& dir, const std::string& name, const std::string& file, const std::string& text,
           const std::string& args) {
   dir = caseDir(name);
@@ -85,6 +85,7 @@ Run runOk(fs::path& dir, const std::string& name, const std::string& file, const
   Run r = runTool(dir, file + " " + args);
   INFO(r.err);
   REQUIRE(r.code == 0);
+  CHECK(r.err.empty());  // stderr is not a terminal here: no progress line, and no warnings
   return r;
 }
 
