@@ -494,7 +494,7 @@ class EstimatorBase {
   }
 
   /// Size in bytes of the image `snapshot` writes now: 40-byte header + payload (options,
-  /// centering, estimator state) + 4-byte CRC. Fixed for a given estimator type and K, except
+  /// centering, guard state, estimator state) + 4-byte CRC. Fixed for a given estimator type and K, except
   /// BatchQr, whose image grows with rows(). O(K).
   std::size_t snapshotSize() const {
     detail::ImageCounter c;
@@ -530,7 +530,7 @@ class EstimatorBase {
   /// the header's payload length + 44, CRC-32 mismatch, payload shorter than the options and
   /// centering state); `image_mismatch` (another format
   /// version, Scalar size or mantissa, estimator kind, intercept mode, byte order, K, forgetting
-  /// factor or VIF limit, other estimator options, or a state of the wrong size, e.g. a BatchQr
+  /// factor or VIF limit, other guard or estimator options, or a state of the wrong size, e.g. a BatchQr
   /// image with more rows than this capacity); otherwise `ok`.
   /// Precondition: `image` points to `length` readable bytes. Cost: O(length).
   Status restore(const unsigned char* image, std::size_t length) {
