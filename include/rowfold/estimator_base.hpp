@@ -527,11 +527,11 @@ class EstimatorBase {
   ///
   /// Returns, checked in this order: the construction status if it is not `ok`;
   /// `corrupt_image` (null, shorter than header + CRC, magic not "RFLD", `length` not equal to
-  /// the header's payload length + 44, CRC-32 mismatch, payload shorter than the options and
-  /// centering state); `image_mismatch` (another format
-  /// version, Scalar size or mantissa, estimator kind, intercept mode, byte order, K, forgetting
-  /// factor or VIF limit, other guard or estimator options, or a state of the wrong size, e.g. a BatchQr
-  /// image with more rows than this capacity); otherwise `ok`.
+  /// the header's payload length + 44, CRC-32 mismatch, payload shorter than the options,
+  /// centering and guard state); `image_mismatch` (another format version, Scalar size or
+  /// mantissa, estimator kind, intercept mode, byte order, K, forgetting factor or VIF limit,
+  /// other guard or estimator options, or a state of the wrong size, e.g. a BatchQr image with
+  /// more rows than this capacity); otherwise `ok`. The guard counters are not in the image.
   /// Precondition: `image` points to `length` readable bytes. Cost: O(length).
   Status restore(const unsigned char* image, std::size_t length) {
     using detail::getField;
