@@ -678,6 +678,18 @@ class EstimatorBase {
   /// `not_available` instead of returning NaN.
   bool factorizeChecked() const {
     if (!derived().factorize(m_work)) return false;
+    if (m_work.rank < m_k && Derived::errorModel != detail::ErrorModel::refined_raw) {  // BatchQr sums raw residuals
+      // Rank deficient: the basic solution leaves z - R b in the dependent rows (a factor whose
+      // dependent diagonal is rounding-level carries part of y there), so that residual belongs
+      // to the SSE: rho^2 + |z - R b|^2 (plain loops: no heap).
+      Scalar extra = Scalar(0);
+      for (Eigen::Index i = 0; i < m_k; ++i) {
+        Scalar r = m_work.z(i);
+        for (Eigen::Index j = i; j < m_k; ++j) r -= m_work.R(i, j) * m_work.b(j);
+        extra += r * r;
+      }
+      m_work.rho = std::sqrt(m_work.rho * m_work.rho + extra);
+    }
     const bool finite = m_work.b.allFinite() && std::isfinite(m_work.intercept) && m_work.R.allFinite() &&
                         m_work.z.allFinite() && std::isfinite(m_work.rho);
     if (!finite) m_work.flags.set(Flag::near_singular);
