@@ -378,7 +378,8 @@ class EstimatorBase {
   /// intervals b -+ t SE with t = t_{(1+level)/2, dof} (studentTQuantile); R^2 = 1 - SSE/SST,
   /// adjusted R^2 and F as in §7.1 with n_eff for n. At lambda = 1 these are the ordinary
   /// s^2 = SSE/(n - p), Cov = s^2 (X~'X~)^-1, dof = n - p. `out.conditioning` is filled as by
-  /// conditioningInto.
+  /// conditioningInto. For a rank-deficient fit (not BatchQr, which sums its raw residuals)
+  /// SSE = rho^2 + |z - R b|^2: the residual the basic solution leaves in the dependent rows.
   ///
   /// Preconditions: 0 < level < 1 (not checked: outside it the intervals are meaningless, NaN for
   /// level >= 1); `out` sized for K (Summary(k) or resize), else it is resized (allocation for
