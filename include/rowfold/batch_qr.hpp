@@ -120,7 +120,7 @@ class BatchQr : public EstimatorBase<BatchQr<Scalar_, K_, Capacity_, MaxK_>, Sca
   }
 
   template <typename XD>
-  void foldRow(const Eigen::MatrixBase<XD>& x, Scalar y, Scalar w, const Vector1&) {
+  void foldRow(const Eigen::MatrixBase<XD>& x, Scalar y, Scalar w, const Vector1&, Scalar) {
     m_x.row(m_n) = x.transpose();
     m_y(m_n) = y;
     m_w(m_n) = w;

@@ -32,9 +32,13 @@ namespace rowfold {
 /// online centering, statistics, conditioning, prediction.
 ///
 /// **Minimum each estimator implements** (`Derived`):
-/// - `void foldRow(const XD& x, Scalar y, Scalar w, const Vector1& row)`: age the state by
-///   lambda and fold the scaled centered row `row` = c [x - xbar, y - ybar] (raw x, y, w are
-///   given for estimators that keep raw data);
+/// - `void foldRow(const XD& x, Scalar y, Scalar w, const Vector1& d, Scalar delta)`: age the
+///   state by lambda and fold the centered row d = [x - xbar, y - ybar] with weight delta, i.e.
+///   the co-moments gain delta d d' (delta = c^2 of NUMERICS §4.1; no square root is taken, the
+///   estimator takes one only if its form needs it). Raw x, y, w are given for estimators that
+///   keep raw data;
+/// - optionally `void foldRows(X, y, w)`: fold validated rows (w == nullptr: unit weights) in
+///   blocks; the default folds them one at a time;
 /// - `std::uint64_t room() const`: how many more samples fit (capacity-bound estimators);
 /// - `void clearState()`;
 /// - `bool factorize(Workspace&) const`: fill R, z, rho, b, intercept, means, W, SST;
@@ -421,10 +425,24 @@ class EstimatorBase {
 
   template <typename XD>
   void fold(const Eigen::MatrixBase<XD>& x, Scalar y, Scalar w) {
-    m_centering.scaledRow(x, y, w, m_lambda, m_fit.intercept, m_row);
-    derived().foldRow(x, y, w, m_row);
-    m_centering.commit(x, y, w, m_lambda, m_fit.intercept, m_row);
+    const auto step = m_centering.centeredRow(x, y, w, m_lambda, m_fit.intercept, m_row);
+    derived().foldRow(x, y, w, m_row, step.delta);
+    m_centering.commitStep(step, m_lambda, m_fit.intercept, m_row);
   }
+
+ protected:
+  /// Default block ingestion: one validated row at a time (zero weights skipped, they do not age
+  /// the state). Estimators with a blocked path shadow this.
+  template <typename XD, typename YD, typename WD>
+  void foldRows(const Eigen::MatrixBase<XD>& X, const Eigen::MatrixBase<YD>& y, const WD* w) {
+    for (Eigen::Index i = 0; i < X.rows(); ++i) {
+      const Scalar wi = w != nullptr ? Scalar((*w)(i)) : Scalar(1);
+      if (wi != Scalar(0)) fold(X.row(i).transpose(), Scalar(y(i)), wi);
+    }
+  }
+  Centering<Scalar, K, MaxK>& mutableCentering() { return m_centering; }
+
+ private:
 
   template <typename XD, typename YD, typename WD>
   Status addRowsImpl(const Eigen::MatrixBase<XD>& X, const Eigen::MatrixBase<YD>& y, const WD* w) {
@@ -438,10 +456,7 @@ class EstimatorBase {
       if (s != Status::ok) return s;
     }
     if (derived().room() < static_cast<std::uint64_t>(n)) return Status::capacity_full;
-    for (Eigen::Index i = 0; i < n; ++i) {
-      const Scalar wi = w != nullptr ? Scalar((*w)(i)) : Scalar(1);
-      if (wi != Scalar(0)) fold(X.row(i).transpose(), Scalar(y(i)), wi);
-    }
+    derived().foldRows(X, y, w);
     return Status::ok;
   }
 

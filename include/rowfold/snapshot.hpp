@@ -36,7 +36,8 @@ namespace rowfold {
 /// Which estimator wrote an image.
 enum class EstimatorKind : std::uint8_t { batch_qr = 1, givens_qr = 2, normal_equations = 3, forgetting_rls = 4 };
 
-constexpr std::uint16_t kSnapshotVersion = 1;
+/// 2: GivensQr keeps the square-root-free factor (d, Rbar) instead of [R z; 0 rho].
+constexpr std::uint16_t kSnapshotVersion = 2;
 
 namespace detail {
 
