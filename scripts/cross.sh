@@ -29,7 +29,8 @@ for arch in "${arches[@]}"; do
     armhf) compilers+=(g++-arm-linux-gnueabihf) ;;
   esac
 done
-rowfold_need_packages cmake "$(rowfold_build_tool)" libeigen3-dev doctest-dev qemu-user "${compilers[@]}"
+rowfold_need_packages cmake "$(rowfold_build_tool)" libeigen3-dev doctest-dev libcli11-dev nlohmann-json3-dev qemu-user \
+  "${compilers[@]}"
 
 # cross_one ARCH: configure (preset ARCH, Release), build and run ctest in build-ARCH/; prints
 # the time of each step, also when one fails.

@@ -1,6 +1,7 @@
 #!/usr/bin/env bash
 # Builds the whole test suite with clang + AddressSanitizer + UndefinedBehaviorSanitizer and runs
-# it, including the libFuzzer targets for a bounded time (ROWFOLD_FUZZ_SECONDS, default 30 s each).
+# it, including the libFuzzer targets (fuzz_estimators, fuzz_restore, fuzz_csv) for a bounded time
+# (ROWFOLD_FUZZ_SECONDS, default 30 s each).
 # The 1e8-sample soak and the host-compiler header/packaging tests are left to scripts/test.sh.
 # Usage: ./scripts/sanitize.sh   (from any directory)
 set -euo pipefail
@@ -8,7 +9,7 @@ cd "$(dirname "${BASH_SOURCE[0]}")/.."
 # shellcheck source=scripts/common.sh
 source scripts/common.sh
 rowfold_need_packages cmake clang libclang-rt-14-dev "$(rowfold_build_tool)" libeigen3-dev doctest-dev \
-  liblapacke-dev liblapack-dev
+  liblapacke-dev liblapack-dev libcli11-dev nlohmann-json3-dev
 flags="-fsanitize=address,undefined -fno-sanitize-recover=all -fno-omit-frame-pointer"
 cmake -S . -B build-sanitize -DCMAKE_BUILD_TYPE=RelWithDebInfo -DCMAKE_CXX_COMPILER=clang++ \
   -DCMAKE_CXX_FLAGS="$flags" -DCMAKE_EXE_LINKER_FLAGS="-fsanitize=address,undefined" \

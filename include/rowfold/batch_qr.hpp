@@ -19,6 +19,10 @@ struct BatchQrOptions : FitOptions {
   Eigen::Index capacity = 1024;
   /// Maximum refinement sweeps (stops earlier when the correction is below rounding).
   int refinementSteps = 8;
+  /// Exact rectangular sliding window: when the buffer is full, a new row overwrites the oldest
+  /// (ring buffer) instead of being refused with capacity_full. The fit and the statistics then
+  /// describe exactly the last `capacity` rows (see the class comment).
+  bool slide = false;
 };
 
 /// Least squares on the stored rows: Householder QR of the weighted, centered design
@@ -41,6 +45,22 @@ struct BatchQrOptions : FitOptions {
 /// memory n (K + 2) scalars of rows plus n (K + 5) of workspace.
 /// Rows are kept in a fixed (Capacity) or runtime (options.capacity) buffer; when it is full,
 /// add returns Status::capacity_full and leaves the state untouched.
+///
+/// **Sliding window (`options.slide`):** the buffer is a ring; when it is full the oldest row is
+/// overwritten, so the fit is exactly the least-squares fit of the last `capacity` rows, solved
+/// from scratch (no downdating: nothing can lose definiteness, and the accuracy is that of a
+/// batch fit of those rows; NUMERICS §3). Under forgetting a row's age is its position counted
+/// from the newest row of the window, whatever its slot in the buffer, and the solve takes the
+/// rows in arrival order, so it is bit-identical to that of a non-sliding state fed the same rows. count(), weightSum() and
+/// effectiveCount() (so every statistic) describe the rows in the window: n, W = sum w lambda^age,
+/// F = sum lambda^age, F2 = sum lambda^(2 age) over the window (F and F2 by position: relax()
+/// scales the stored weights, hence W, but not F and F2). `centering()` is the base
+/// class's running record of every row ever folded and is not used by this estimator's fit.
+/// A snapshot holds the window's rows oldest first (restore puts them back in that order), so
+/// it equals the image of a non-sliding state fed exactly those rows, apart from the option
+/// byte and the centering record. `merge` folds the other state's rows in after this state's,
+/// oldest first, as if added one by one: the window keeps the last `capacity` of them (never
+/// capacity_full). Cost: add O(K) whether or not a row is dropped; merge O(n K).
 template <typename Scalar_, int K_, int Capacity_ = Eigen::Dynamic, int MaxK_ = K_>
 class BatchQr : public EstimatorBase<BatchQr<Scalar_, K_, Capacity_, MaxK_>, Scalar_, K_, MaxK_> {
   using Base = EstimatorBase<BatchQr<Scalar_, K_, Capacity_, MaxK_>, Scalar_, K_, MaxK_>;
@@ -82,15 +102,19 @@ class BatchQr : public EstimatorBase<BatchQr<Scalar_, K_, Capacity_, MaxK_>, Sca
   Status status() const { return m_badOptions ? Status::invalid_options : Base::status(); }
   Eigen::Index capacity() const { return m_capacity; }
   Eigen::Index rows() const { return m_n; }
+  /// True when the buffer is a sliding window (options.slide).
+  bool sliding() const { return m_options.slide; }
   /// Refinement sweeps used by the last factorization.
   int refinementSweeps() const { return m_sweeps; }
 
  private:
   std::uint64_t room() const {
-    return m_badOptions ? 0 : static_cast<std::uint64_t>(m_capacity - m_n);
+    if (m_badOptions) return 0;
+    return m_options.slide ? std::numeric_limits<std::uint64_t>::max() : static_cast<std::uint64_t>(m_capacity - m_n);
   }
   void clearState() {
     m_n = 0;
+    m_head = 0;
     m_x.setZero();
     m_y.setZero();
     m_w.setZero();
@@ -100,17 +124,28 @@ class BatchQr : public EstimatorBase<BatchQr<Scalar_, K_, Capacity_, MaxK_>, Sca
   static void visitOptions(Self& self, V& v) {
     const std::uint64_t capacity = static_cast<std::uint64_t>(self.m_capacity);
     v.field(capacity);
+    const std::uint8_t slide = self.m_options.slide ? 1 : 0;
+    v.field(slide);
   }
-  /// Only the rows in use are stored: n, then x (n x K, column by column), y, w.
+  /// Only the rows in use are stored, oldest first: n, then x (n x K, column by column), y, w.
+  /// A sliding window is written in its logical order (slots head..end, then 0..head) and read
+  /// back with the oldest row in slot 0.
   template <typename Self, typename V>
   static void visitState(Self& self, V& v) {
     std::uint64_t n = static_cast<std::uint64_t>(self.m_n);
     v.field(n);
-    if constexpr (!std::is_const<Self>::value) self.m_n = static_cast<Eigen::Index>(n);
-    const std::size_t rows = static_cast<std::size_t>(self.m_n);
-    for (Eigen::Index j = 0; j < self.m_x.cols(); ++j) v.array(self.m_x.col(j).data(), rows);
-    v.array(self.m_y.data(), rows);
-    v.array(self.m_w.data(), rows);
+    if constexpr (!std::is_const<Self>::value) {
+      self.m_n = static_cast<Eigen::Index>(n);
+      self.m_head = 0;
+    }
+    const std::size_t rows = static_cast<std::size_t>(self.m_n), head = static_cast<std::size_t>(self.m_head);
+    const auto both = [&v, rows, head](auto* data) {
+      v.array(data + head, rows - head);
+      v.array(data, head);
+    };
+    for (Eigen::Index j = 0; j < self.m_x.cols(); ++j) both(self.m_x.col(j).data());
+    both(self.m_y.data());
+    both(self.m_w.data());
   }
   std::size_t expectedStateBytes(const unsigned char* state, std::size_t available) const {
     if (available < sizeof(std::uint64_t)) return std::numeric_limits<std::size_t>::max();
@@ -121,17 +156,76 @@ class BatchQr : public EstimatorBase<BatchQr<Scalar_, K_, Capacity_, MaxK_>, Sca
 
   template <typename XD>
   void foldRow(const Eigen::MatrixBase<XD>& x, Scalar y, Scalar w, const Vector1&, Scalar) {
-    m_x.row(m_n) = x.transpose();
-    m_y(m_n) = y;
-    m_w(m_n) = w;
-    ++m_n;
+    push(x.transpose(), y, w);
   }
 
-  /// omega_i = sqrt(w_i lambda^age).
+  /// Stores a row in the next free slot or, when the buffer is full (sliding window only; room()
+  /// refuses otherwise), over the oldest row.
+  template <typename RD>
+  void push(const Eigen::MatrixBase<RD>& xRow, Scalar y, Scalar w) {
+    Eigen::Index at = m_n;
+    if (m_n < m_capacity) {
+      ++m_n;
+    } else {
+      at = m_head;
+      m_head = m_head + 1 == m_capacity ? 0 : m_head + 1;
+    }
+    m_x.row(at) = xRow;
+    m_y(at) = y;
+    m_w(at) = w;
+  }
+  /// Buffer slot of the row at logical position `pos` (0 = oldest).
+  Eigen::Index slot(Eigen::Index pos) const {
+    const Eigen::Index s = m_head + pos;
+    return s < m_capacity ? s : s - m_capacity;
+  }
+
+  /// What the fit remembers (the memory* hooks of EstimatorBase). Without `slide` no row ever
+  /// leaves, so the centering's record is exact; a sliding window sums over its rows.
+  std::uint64_t memoryCount() const {
+    return m_options.slide ? static_cast<std::uint64_t>(m_n) : this->centering().count();
+  }
+  Scalar memoryWeight() const {
+    if (!m_options.slide) return this->centering().weightSum();
+    detail::Twofold<Scalar> acc;
+    for (Eigen::Index i = 0; i < m_n; ++i) {
+      const Scalar om = omega(i);
+      acc.addProduct(om, om);
+    }
+    return acc.value();
+  }
+  Scalar memoryForget() const { return m_options.slide ? geometricSum(1) : this->centering().forgetSum(); }
+  Scalar memoryForget2() const { return m_options.slide ? geometricSum(2) : this->centering().forgetSum2(); }
+  /// sum_{a=0}^{n-1} lambda^(power a) = (1 - lambda^(power n)) / (1 - lambda^power), with expm1
+  /// and log1p so that lambda close to 1 loses no digits (1 - lambda is exact for lambda >= 1/2).
+  Scalar geometricSum(int power) const {
+    const Scalar lambda = static_cast<Scalar>(this->fitOptions().forgetting), n = Scalar(m_n);
+    if (lambda == Scalar(1)) return n;
+    const Scalar q = Scalar(1) - lambda, p = Scalar(power);
+    const Scalar denominator = power == 1 ? q : q * (Scalar(1) + lambda);
+    return -std::expm1(p * n * std::log1p(-q)) / denominator;
+  }
+
+  Status canMerge(const BatchQr& other) const {
+    return room() < static_cast<std::uint64_t>(other.m_n) ? Status::capacity_full : Status::ok;
+  }
+  /// The other state's rows are appended after this state's, oldest first (a sliding window
+  /// drops its oldest rows as they come): their ages follow from the order.
+  void mergeState(const BatchQr& other, Scalar, const Vector1&) {
+    for (Eigen::Index i = 0; i < other.m_n; ++i) {
+      const Eigen::Index j = other.slot(i);
+      push(other.m_x.row(j), other.m_y(j), other.m_w(j));
+    }
+  }
+
+  /// omega_i = sqrt(w_i lambda^age). Here and in the solve, row i is the i-th row in arrival
+  /// order (0 = oldest), stored in buffer slot slot(i) (= i until a sliding window wraps): the
+  /// solve sees the rows in the same order as a non-sliding state fed the same rows.
   Scalar omega(Eigen::Index i) const {
     const Scalar lambda = this->lambda();
     const Scalar age = Scalar(m_n - 1 - i);
-    return std::sqrt(lambda == Scalar(1) ? m_w(i) : m_w(i) * std::pow(lambda, age));
+    const Scalar w = m_w(slot(i));
+    return std::sqrt(lambda == Scalar(1) ? w : w * std::pow(lambda, age));
   }
 
   /// A_ij in twofold precision from the raw data: omega_i (x_ij - c_j), column 0 = omega_i
@@ -139,10 +233,10 @@ class BatchQr : public EstimatorBase<BatchQr<Scalar_, K_, Capacity_, MaxK_>, Sca
   detail::Twofold<Scalar> designEntry(Eigen::Index i, Eigen::Index col, Scalar om, const WorkspaceType& ws) const {
     if (m_offset == 1 && col == 0) return detail::Twofold<Scalar>{om, Scalar(0)};
     const Eigen::Index j = col - m_offset;
-    return detail::exactDifference(m_x(i, j), ws.xbar(j)).scaled(om);
+    return detail::exactDifference(m_x(slot(i), j), ws.xbar(j)).scaled(om);
   }
   detail::Twofold<Scalar> rhsEntry(Eigen::Index i, Scalar om, const WorkspaceType& ws) const {
-    return detail::exactDifference(m_y(i), ws.ybar).scaled(om);
+    return detail::exactDifference(m_y(slot(i)), ws.ybar).scaled(om);
   }
 
   void applyQt(Eigen::Index n, Eigen::Index p, Column& v) const {
@@ -171,11 +265,11 @@ class BatchQr : public EstimatorBase<BatchQr<Scalar_, K_, Capacity_, MaxK_>, Sca
     if (m_offset == 1) {
       for (Eigen::Index j = 0; j < k; ++j) {
         detail::Twofold<Scalar> acc;
-        for (Eigen::Index i = 0; i < n; ++i) acc.addProduct(m_f(i) * m_f(i), m_x(i, j));
+        for (Eigen::Index i = 0; i < n; ++i) acc.addProduct(m_f(i) * m_f(i), m_x(slot(i), j));
         ws.xbar(j) = acc.value() / ws.weight;
       }
       detail::Twofold<Scalar> acc;
-      for (Eigen::Index i = 0; i < n; ++i) acc.addProduct(m_f(i) * m_f(i), m_y(i));
+      for (Eigen::Index i = 0; i < n; ++i) acc.addProduct(m_f(i) * m_f(i), m_y(slot(i)));
       ws.ybar = acc.value() / ws.weight;
     }
 
@@ -313,6 +407,7 @@ class BatchQr : public EstimatorBase<BatchQr<Scalar_, K_, Capacity_, MaxK_>, Sca
   Options m_options;
   Eigen::Index m_capacity;
   Eigen::Index m_n = 0;
+  Eigen::Index m_head = 0;  ///< slot of the oldest row (nonzero only once a sliding window wrapped)
   RowMatrix m_x;
   Column m_y, m_w;
   // Solve-time workspace (not part of the state).

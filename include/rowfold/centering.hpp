@@ -160,6 +160,99 @@ class Centering {
     ++m_count;
   }
 
+  /// Row that removes a sample (x, y) of current weight w (its folding weight times the
+  /// forgetting it has undergone since) from the state: the weighted form of the centered
+  /// downdate (NUMERICS §3, derived there for unit weights, here with weights by inverting the
+  /// update above): with W, xbar, ybar the statistics *including* the sample,
+  /// ```
+  ///   W' = W - w,   d = [x - xbar, y - ybar],   row = sqrt(W w / W') d,   M' = M - row row',
+  ///   xbar' = xbar - (w/W') d_x,   ybar' = ybar - (w/W') d_y.
+  /// ```
+  /// Without intercept row = sqrt(w) [x, y]. Returns false (row unspecified) when W' is not
+  /// positive. Does not change the state; commit with remove() once the estimator accepted it.
+  template <typename XD>
+  bool removalRow(const Eigen::MatrixBase<XD>& x, Scalar y, Scalar w, Intercept mode, Vector1& row) const {
+    const Eigen::Index k = m_xbar.size();
+    const Scalar rest = m_weight - w;
+    if (!(rest > Scalar(0))) return false;
+    if (mode == Intercept::none) {
+      const Scalar c = std::sqrt(w);
+      row.head(k) = c * x;
+      row(k) = c * y;
+      return true;
+    }
+    const Scalar c = std::sqrt(w * (m_weight / rest));
+    row.head(k) = c * (x - m_xbar);
+    row(k) = c * (y - m_ybar);
+    return true;
+  }
+
+  /// Commits the removal of a sample (see removalRow; `row` is the row it produced). `aged` is
+  /// the sample's forgetting share lambda^age alone (sample weight excluded), which leaves F and
+  /// F2. Sums that rounding would push below zero are clamped at zero.
+  template <typename XD>
+  void remove(const Eigen::MatrixBase<XD>& x, Scalar y, Scalar w, Intercept mode, const Vector1& row, Scalar aged) {
+    const Eigen::Index k = m_xbar.size();
+    const Scalar rest = m_weight - w;
+    if (mode == Intercept::fit) {
+      const Scalar share = w / rest;
+      m_xbar -= share * (x - m_xbar);
+      m_ybar -= share * (y - m_ybar);
+    }
+    const Scalar zero(0);
+    m_syy -= row(k) * row(k);
+    if (m_syy < zero) m_syy = zero;
+    m_weight = rest;
+    m_forget -= aged;
+    if (m_forget < zero) m_forget = zero;
+    m_forget2 -= aged * aged;
+    if (m_forget2 < zero) m_forget2 = zero;
+    if (m_count > 0) --m_count;
+  }
+
+  /// Aging factor lambda^n applied to this state when `n` later samples are merged in
+  /// (1 when lambda = 1; may underflow to 0, which forgets the old state entirely).
+  static Scalar agingFactor(Scalar lambda, std::uint64_t n) {
+    if (lambda == Scalar(1)) return Scalar(1);
+    Scalar result = Scalar(1), base = lambda;
+    for (std::uint64_t e = n; e != 0; e >>= 1) {  // binary powering: exact for small n, O(log n)
+      if ((e & 1u) != 0) result *= base;
+      base *= base;
+    }
+    return result;
+  }
+
+  /// Correction row of the pairwise merge with a state `other` whose samples came after this
+  /// state's, this state aged by `age`: row = sqrt(Wa Wb / W) [xbar_b - xbar_a, ybar_b - ybar_a]
+  /// with Wa = age W_this (Chan, Golub & LeVeque 1979, factored form; NUMERICS §4.1, §5).
+  /// Zero without intercept (no centering). Does not change the state.
+  void mergeRow(const Centering& other, Scalar age, Intercept mode, Vector1& row) const {
+    const Eigen::Index k = m_xbar.size();
+    row.setZero();
+    if (mode == Intercept::none) return;
+    const Scalar wa = age * m_weight, wb = other.m_weight, w = wa + wb;
+    if (!(w > Scalar(0))) return;
+    const Scalar c = std::sqrt(wa * (wb / w));
+    row.head(k) = c * (other.m_xbar - m_xbar);
+    row(k) = c * (other.m_ybar - m_ybar);
+  }
+
+  /// Commits the merge of `other` (see mergeRow; `row` is the correction row it produced).
+  void commitMerge(const Centering& other, Scalar age, Intercept mode, const Vector1& row) {
+    const Eigen::Index k = m_xbar.size();
+    const Scalar wa = age * m_weight, w = wa + other.m_weight;
+    if (mode == Intercept::fit && w > Scalar(0)) {
+      const Scalar share = other.m_weight / w;
+      m_xbar += share * (other.m_xbar - m_xbar);
+      m_ybar += share * (other.m_ybar - m_ybar);
+    }
+    m_syy = age * m_syy + other.m_syy + row(k) * row(k);
+    m_weight = w;
+    m_forget = age * m_forget + other.m_forget;
+    m_forget2 = age * age * m_forget2 + other.m_forget2;
+    m_count += other.m_count;
+  }
+
   /// Visits every state field in a fixed order (snapshot/restore; Self may be const).
   template <typename Self, typename V>
   static void visitState(Self& self, V& v) {

@@ -116,6 +116,37 @@ class EstimatorBase {
     return addRowsImpl(X, y, &w);
   }
 
+  /// Merges the state `other` into this one: afterwards this estimator holds the fit of this
+  /// state's samples *followed by* other's samples, as if they had been folded here one by one.
+  /// With forgetting, this state is first aged by lambda^n (n = other.count()); with lambda = 1
+  /// the merge is symmetric. Centered states combine with the pairwise formula of Chan, Golub &
+  /// LeVeque (1979): the means are pooled and the row sqrt(Wa Wb / W) (mean_b - mean_a) is
+  /// folded in with the other state (NUMERICS §4.1, §5). Each estimator combines its own form:
+  /// stacked-factor QR (GivensQr), added co-moments (NormalEquations), co-moments rebuilt from
+  /// P (ForgettingRls), appended rows (BatchQr).
+  ///
+  /// Returns `state_mismatch` (other K, intercept mode, forgetting or estimator options, or
+  /// `other` is this very object),
+  /// `capacity_full` (BatchQr without room), `not_available` (ForgettingRls with a prior start,
+  /// whose prior would count twice) or the construction status; in all these cases the state
+  /// is untouched. Never allocates. Cost: that of folding K+2 rows (GivensQr O(K^3)),
+  /// O(K^2) (NormalEquations), O(K^3) (ForgettingRls), O(n K) (BatchQr).
+  Status merge(const Derived& other) {
+    if (derived().status() != Status::ok) return derived().status();
+    if (other.status() != Status::ok || &other == &derived()) return Status::state_mismatch;
+    const EstimatorBase& o = other;
+    if (o.m_k != m_k || o.m_fit.intercept != m_fit.intercept || o.m_fit.forgetting != m_fit.forgetting)
+      return Status::state_mismatch;
+    if (o.count() == 0) return Status::ok;
+    const Status s = derived().canMerge(other);
+    if (s != Status::ok) return s;
+    const Scalar age = Centering<Scalar, K, MaxK>::agingFactor(m_lambda, o.count());
+    m_centering.mergeRow(o.m_centering, age, m_fit.intercept, m_row);
+    derived().mergeState(other, age, m_row);
+    m_centering.commitMerge(o.m_centering, age, m_fit.intercept, m_row);
+    return Status::ok;
+  }
+
   /// Forgets everything (options kept).
   void reset() {
     m_centering.reset();

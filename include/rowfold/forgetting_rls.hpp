@@ -7,6 +7,7 @@
 #include <limits>
 
 #include "rowfold/detail/cholesky.hpp"
+#include "rowfold/detail/givens.hpp"
 #include "rowfold/estimator_base.hpp"
 
 namespace rowfold {
@@ -197,6 +198,72 @@ class ForgettingRls : public EstimatorBase<ForgettingRls<Scalar_, K_, MaxK_>, Sc
     if (!positive) m_lost = true;
   }
 
+  /// Merging works on the augmented factors [R z; 0 rho] of both states (R'R = P^-1 after
+  /// the start, the Cholesky factor of the co-moments before it); they are formed here, into
+  /// the two workspaces, so that a state whose P lost definiteness is refused before anything
+  /// changes. A prior start cannot merge: each state carries its own prior.
+  Status canMerge(const ForgettingRls& other) const {
+    if (m_options.start != other.m_options.start || m_options.priorPrecision != other.m_options.priorPrecision)
+      return Status::state_mismatch;
+    if (m_options.start == RlsStart::prior) return Status::not_available;
+    if (!augmentedFactor() || !other.augmentedFactor()) return Status::not_available;
+    return Status::ok;
+  }
+
+  /// Stacked-factor QR of the two augmented factors and the centering correction row
+  /// (detail::mergeFactorInto), then P = R^-1 R^-T and theta = R^-1 z once R has full rank.
+  /// Working on factors, not on co-moments, keeps the merge itself from squaring the
+  /// condition number a second time.
+  void mergeState(const ForgettingRls& other, Scalar age, const Vector1& correction) {
+    const Eigen::Index k = this->regressors();
+    WorkspaceType& ws = this->work();
+    if (age != Scalar(1)) ws.aug *= std::sqrt(age);
+    ws.v1aug = correction;
+    detail::mergeFactorInto(ws.aug, other.work().aug, ws.v1aug, ws.v2aug);
+    m_lost = m_lost || other.m_lost;
+    ws.scratch = ws.aug.topLeftCorner(k, k);
+    ws.v1 = ws.aug.col(k).head(k);
+    const Eigen::Index p = k + (this->interceptMode() == Intercept::fit ? 1 : 0);
+    if (this->count() + other.count() >= static_cast<std::uint64_t>(p) && !detail::hasDependentColumn(ws.scratch)) {
+      startFrom(ws.aug(k, k) * ws.aug(k, k));
+      return;
+    }
+    // Not yet determined: keep co-moments M = R'R, m = R'z (plain loops: no heap).
+    m_recursive = false;
+    for (Eigen::Index j = 0; j < k; ++j) {
+      for (Eigen::Index i = j; i < k; ++i) m_P(i, j) = ws.scratch.col(i).head(j + 1).dot(ws.scratch.col(j).head(j + 1));
+      m_theta(j) = ws.scratch.col(j).head(j + 1).dot(ws.v1.head(j + 1));
+    }
+  }
+
+  /// [R z; 0 rho] of this state into its workspace's `aug` (false if P is no longer definite).
+  bool augmentedFactor() const {
+    const Eigen::Index k = this->regressors();
+    WorkspaceType& ws = this->work();
+    if (!factorize(ws)) return false;
+    ws.aug.setZero();
+    ws.aug.topLeftCorner(k, k) = ws.R.template triangularView<Eigen::Upper>();
+    ws.aug.col(k).head(k) = ws.z;
+    ws.aug(k, k) = ws.rho;
+    return ws.aug.allFinite();
+  }
+
+  /// Starts the recursion from an upper-triangular factor R (in ws.scratch, R'R = M) and
+  /// z = R^-T m (in ws.v1): theta = R^-1 z, P = R^-1 R^-T, and the given SSE.
+  void startFrom(Scalar sse) {
+    const Eigen::Index k = this->regressors();
+    WorkspaceType& ws = this->work();
+    ws.v2 = ws.v1;
+    detail::backSubstitute(ws.scratch, ws.v2, k);
+    detail::invertUpper(ws.scratch, ws.Rinv);
+    m_theta = ws.v2;
+    m_P.noalias() = ws.Rinv.lazyProduct(ws.Rinv.transpose());  // Rinv is upper triangular, zeros below
+    for (Eigen::Index j = 1; j < k; ++j)  // exactly symmetric (both triangles are updated)
+      for (Eigen::Index i = 0; i < j; ++i) m_P(i, j) = m_P(j, i);
+    m_sse = sse;
+    m_recursive = true;
+  }
+
   /// Forms P = M^-1 and theta once the accumulated co-moments have full numerical rank.
   void tryStart(Scalar syyWithRow) {
     const Eigen::Index k = this->regressors();
@@ -206,19 +273,10 @@ class ForgettingRls : public EstimatorBase<ForgettingRls<Scalar_, K_, MaxK_>, Sc
     const Scalar tol = Scalar(4) * Scalar(k + 1) * std::numeric_limits<Scalar>::epsilon();
     const Eigen::Index zeroed = detail::semidefiniteCholesky(m_P, ws.scratch, tol, false);
     if (zeroed != 0 || detail::hasDependentColumn(ws.scratch)) return;
-    // theta = M^-1 m by two triangular solves; P = R^-1 R^-T (the covariance form needs P itself).
     ws.v1 = m_theta;
-    detail::forwardSubstituteTransposed(ws.scratch, ws.v1);
-    ws.v2 = ws.v1;
-    detail::backSubstitute(ws.scratch, ws.v2, k);
-    detail::invertUpper(ws.scratch, ws.Rinv);
-    const Scalar m2 = ws.v1.squaredNorm();  // m'M^-1 m
-    m_theta = ws.v2;
-    m_P.noalias() = ws.Rinv.lazyProduct(ws.Rinv.transpose());  // Rinv is upper triangular, zeros below
-    for (Eigen::Index j = 1; j < k; ++j)  // exactly symmetric
-      for (Eigen::Index i = 0; i < j; ++i) m_P(i, j) = m_P(j, i);
-    m_sse = syyWithRow - m2 > Scalar(0) ? syyWithRow - m2 : Scalar(0);  // SSE = Syy - m'M^-1 m
-    m_recursive = true;
+    detail::forwardSubstituteTransposed(ws.scratch, ws.v1);  // z = R^-T m
+    const Scalar sse = syyWithRow - ws.v1.squaredNorm();   // SSE = Syy - m'M^-1 m
+    startFrom(sse > Scalar(0) ? sse : Scalar(0));
   }
 
   bool factorize(WorkspaceType& ws) const {

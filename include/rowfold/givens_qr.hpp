@@ -4,7 +4,9 @@
 
 #include <cmath>
 #include <limits>
+#include <type_traits>
 
+#include "rowfold/detail/givens.hpp"
 #include "rowfold/detail/row_block.hpp"
 #include "rowfold/estimator_base.hpp"
 
@@ -40,6 +42,22 @@ struct GivensQrOptions : FitOptions {};
 /// solve = forming the explicit factor (K^2/2) + one back substitution (K^2/2);
 /// summarize/conditioning O(K^3). State: (K+1)(K+2)/2 scalars (d and Rbar, stored as a full
 /// row-major (K+1)^2 matrix) + centering.
+///
+/// **Downdating (`remove`):** takes a previously folded sample out again (LINPACK/Saunders
+/// method: Saunders 1972; Dongarra, Moler, Bunch & Stewart 1979, LINPACK Users' Guide ch. 10;
+/// NUMERICS §3). With u the scaled centered row of the sample (Centering::removalRow):
+/// ```
+///   R'a = u_x,  alpha = sqrt(1 - |a|^2)   (|a|^2 >= 1: impossible -> Status::not_definite),
+///   zeta = (u_y - a'z) / alpha,  rotations G_K .. G_1 with G [a; alpha] = [0; 1] applied to
+///   [R z; 0 zeta]  ->  [R~ z~; u'],   rho~^2 = rho^2 - zeta^2,
+/// ```
+/// then the centered downdate of the means and weights. It runs on the explicit factor, formed
+/// from and converted back to the square-root-free state (d_i = R_ii^2, rbar_ij = R_ij / R_ii).
+/// Cost ~ K^2/2 + 3 K^2 multiplies and 2K square roots. **Stability:** only relationally stable (Stewart 1979): the error grows like
+/// 1/alpha^2, so a sample that carries most of the information in some direction is refused or
+/// removed inaccurately; long alternating update/downdate sequences are a double-precision
+/// technique (Baykal & Constantinides 1998: stable in 53-bit, divergent with fewer bits).
+/// Float32 downdating is not recommended; prefer BlockWindow (window.hpp) or a sliding BatchQr.
 template <typename Scalar_, int K_, int MaxK_ = K_>
 class GivensQr : public EstimatorBase<GivensQr<Scalar_, K_, MaxK_>, Scalar_, K_, MaxK_> {
   using Base = EstimatorBase<GivensQr<Scalar_, K_, MaxK_>, Scalar_, K_, MaxK_>;
@@ -93,6 +111,84 @@ class GivensQr : public EstimatorBase<GivensQr<Scalar_, K_, MaxK_>, Scalar_, K_,
     out.intercept =
         this->interceptMode() == Intercept::fit ? c.yMean() - c.xMean().dot(out.coefficients) : Scalar(0);
     return this->finishChecked(out);
+  }
+
+  /// Removes a sample (x, y) folded earlier (downdating; see the class comment).
+  ///
+  /// `w` is the sample's *current* weight: the weight it was folded with times the forgetting
+  /// it has undergone since (w0 lambda^age; with the windup guard, times the step factors the
+  /// guard actually applied). `aged` is its forgetting share alone, lambda^age, which leaves F
+  /// and F2 (the effective sample size); by default 1 when lambda = 1 and w when lambda < 1 (a
+  /// unit-weight sample). The caller must pass a sample that was folded: the method cannot tell
+  /// another one, except when removing it would make the state indefinite.
+  ///
+  /// Returns `ok`; `not_definite` when the downdate is impossible or singular to working
+  /// precision (1 - |R^-T u_x|^2 <= (K+1) eps, the remaining weight W - w is not positive, the
+  /// factor is rank deficient, or the residual sum of squares would turn clearly negative);
+  /// `empty` (nothing folded); the input checks of add (`wrong_size`, `negative_weight` also for
+  /// `aged` outside [0, 1], `nonfinite_input`) or the construction status. On any status but
+  /// `ok` the state is untouched. A zero weight removes nothing. Removing the only sample
+  /// resets the estimator. The windup guard's spread record is not downdated. Never allocates.
+  template <typename XD>
+  Status remove(const Eigen::MatrixBase<XD>& x, Scalar y, Scalar w = Scalar(1), Scalar aged = Scalar(-1)) {
+    static_assert(std::is_same<typename XD::Scalar, Scalar>::value, "rowfold: x must have the estimator's Scalar");
+    using std::abs;
+    using std::sqrt;
+    const Eigen::Index k = this->regressors();
+    const Scalar one(1), zero(0), eps = std::numeric_limits<Scalar>::epsilon();
+    if (this->status() != Status::ok) return this->status();
+    if (x.size() != k) return Status::wrong_size;
+    if (!(w >= zero) || !std::isfinite(w)) return Status::negative_weight;
+    if (aged < zero && !std::isnan(aged)) aged = this->fitOptions().forgetting == 1.0 ? one : w;
+    if (!(aged >= zero && aged <= one)) return Status::negative_weight;
+    if (!std::isfinite(y) || !x.allFinite()) return Status::nonfinite_input;
+    if (w == zero) return Status::ok;
+    const auto& centering = this->centering();
+    if (centering.count() == 0) return Status::empty;
+    if (centering.count() == 1) {  // the only sample: its weight must be the whole weight
+      if (!(abs(centering.weightSum() - w) <= sqrt(eps) * centering.weightSum())) return Status::not_definite;
+      this->reset();
+      return Status::ok;
+    }
+    WorkspaceType& ws = this->work();
+    Vector1& u = ws.v1aug;
+    if (!centering.removalRow(x, y, w, this->interceptMode(), u)) return Status::not_definite;
+    formFactor();  // the downdate works on the explicit factor; takeFactor() converts back
+    for (Eigen::Index i = 0; i < k; ++i)
+      if (!(m_factor(i, i) > zero)) return Status::not_definite;
+    // a = R^-T u_x; the downdate exists iff |a| < 1 (R'R - u_x u_x' positive definite).
+    auto& a = ws.v1;
+    a = u.head(k);
+    detail::forwardSubstituteTransposed(m_factor.topLeftCorner(k, k), a);
+    const Scalar aa = a.squaredNorm();
+    if (!(aa < one - Scalar(k + 1) * eps)) return Status::not_definite;
+    Scalar alpha = sqrt(one - aa);
+    const Scalar zeta = (u(k) - a.dot(m_factor.col(k).head(k))) / alpha;
+    const Scalar rho = abs(m_factor(k, k));
+    const Scalar rest2 = (rho - abs(zeta)) * (rho + abs(zeta));
+    const Scalar scale2 = m_factor.col(k).head(k).squaredNorm() + rho * rho + zeta * zeta + u(k) * u(k);
+    if (rest2 < -Scalar(8 * (k + 2)) * eps * scale2) return Status::not_definite;
+    // Rotations zeroing a from the bottom against alpha, applied to the rows of [R z] and the
+    // extra row e = [0, zeta]; the diagonal stays positive (R~_ii = c R_ii, c > 0).
+    Vector1& e = ws.v2aug;
+    e.setZero();
+    e(k) = zeta;
+    for (Eigen::Index i = k - 1; i >= 0; --i) {
+      const Scalar r = detail::safeHypot(alpha, a(i));
+      const Scalar c = alpha / r, s = a(i) / r;
+      alpha = r;
+      for (Eigen::Index j = i; j <= k; ++j) {
+        const Scalar fij = m_factor(i, j), ej = e(j);
+        m_factor(i, j) = c * fij - s * ej;
+        e(j) = s * fij + c * ej;
+      }
+    }
+    m_factor(k, k) = rest2 > zero ? sqrt(rest2) : zero;
+    takeFactor();
+    // Base keeps the centering private and offers it read-only; the object itself is not const.
+    auto& mutableCentering = const_cast<Centering<Scalar, K_, MaxK_>&>(centering);
+    mutableCentering.remove(x, y, w, this->interceptMode(), u, aged);
+    return Status::ok;
   }
 
  private:
@@ -323,6 +419,50 @@ class GivensQr : public EstimatorBase<GivensQr<Scalar_, K_, MaxK_>, Scalar_, K_,
       }
     }
   }
+
+  Status canMerge(const GivensQr&) const { return Status::ok; }
+
+  /// Stacked-factor merge (the TSQR step, NUMERICS §5), in square-root-free form: this state is
+  /// aged by `age` (D only), then the rows of the other factor, D_o^(1/2) Rbar_o, are folded as
+  /// the rows Rbar_o(i, :) with weights d_o,i (no square root), then the centering correction row.
+  void mergeState(const GivensQr& other, Scalar age, const Vector1& correction) {
+    const Eigen::Index n = m_state.rows();
+    ageDiagonal(0, age);
+    Vector1& row = this->work().v1aug;
+    for (Eigen::Index i = 0; i < n; ++i) {
+      const Scalar di = other.m_state(i, i) / other.m_scale;
+      if (!(di > Scalar(0))) continue;
+      row.head(i).setZero();
+      row(i) = Scalar(1);
+      for (Eigen::Index j = i + 1; j < n; ++j) row(j) = other.m_state(i, j);
+      foldCentered(row, di, Scalar(1));
+    }
+    foldCentered(correction, Scalar(1), Scalar(1));
+  }
+
+  /// Square-root-free state from the explicit factor in m_factor (after a downdate):
+  /// d_i = R_ii^2 (in the power-of-4 scale that keeps the largest in range), rbar_ij = R_ij/R_ii.
+  void takeFactor() {
+    const Eigen::Index n = m_state.rows();
+    Scalar rmax = Scalar(0);
+    for (Eigen::Index i = 0; i < n; ++i) rmax = std::abs(m_factor(i, i)) > rmax ? std::abs(m_factor(i, i)) : rmax;
+    int e = 0;
+    std::frexp(rmax, &e);
+    const int top = (std::numeric_limits<Scalar>::max_exponent - 2 * std::numeric_limits<Scalar>::digits - 8) / 2;
+    const int half = e > top ? top - e : 0;  // sqrt(scale) = 2^half
+    m_scale = std::ldexp(Scalar(1), 2 * half);
+    m_state.setZero();
+    for (Eigen::Index i = 0; i < n; ++i) {
+      const Scalar rii = m_factor(i, i);
+      if (rii == Scalar(0)) continue;
+      const Scalar s = std::ldexp(rii, half);
+      m_state(i, i) = s * s;
+      const Scalar inv = Scalar(1) / rii;
+      for (Eigen::Index j = i + 1; j < n; ++j) m_state(i, j) = m_factor(i, j) * inv;
+    }
+  }
+
+  static Scalar safeHypot(Scalar a, Scalar b) { return detail::safeHypot(a, b); }
 
   bool factorize(WorkspaceType& ws) const {
     const Eigen::Index k = this->regressors();

@@ -135,6 +135,16 @@ class NormalEquations : public EstimatorBase<NormalEquations<Scalar_, K_, MaxK_>
     }
   }
 
+  Status canMerge(const NormalEquations&) const { return Status::ok; }
+
+  /// Co-moments add (Chan, Golub & LeVeque 1979): G = age G_a + G_b + r r' (r = correction row).
+  void mergeState(const NormalEquations& other, Scalar age, const Vector1& correction) {
+    auto lower = m_gram.template triangularView<Eigen::Lower>();
+    if (age != Scalar(1)) lower *= age;
+    lower += other.m_gram;
+    m_gram.template selfadjointView<Eigen::Lower>().rankUpdate(correction, Scalar(1));
+  }
+
   bool factorize(WorkspaceType& ws) const {
     const Eigen::Index k = this->regressors();
     ws.flags = Flags();

@@ -13,3 +13,4 @@
 #include "rowfold/snapshot.hpp"
 #include "rowfold/status.hpp"
 #include "rowfold/student_t.hpp"
+#include "rowfold/window.hpp"

@@ -37,6 +37,7 @@ struct Workspace {
   typename D::Matrix R, Rinv, scratch;
   typename D::Matrix1 aug, aug2;
   typename D::Vector z, b, xbar, v1, v2, v3, v4, scale;
+  typename D::Vector1 v1aug, v2aug;
   PivotWork<Scalar, K, MaxK> pivoted;
   Scalar rho = 0, sst = 0, intercept = 0, ybar = 0, weight = 0;
   Eigen::Index rank = 0;
@@ -47,6 +48,8 @@ struct Workspace {
   void resize(Eigen::Index k) {
     aug.setZero(k + 1, k + 1);
     aug2.setZero(k + 1, k + 1);
+    v1aug.setZero(k + 1);
+    v2aug.setZero(k + 1);
     R.setZero(k, k);
     Rinv.setZero(k, k);
     scratch.setZero(k, k);

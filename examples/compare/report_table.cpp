@@ -1,0 +1,108 @@
+// The console comparison table.
+#include <algorithm>
+#include <cmath>
+#include <string>
+
+#include "flag_text.hpp"
+#include "report.hpp"
+
+namespace rowfold_compare {
+namespace {
+
+constexpr int kCell = 24;
+
+std::string fmt(const char* format, double v) {
+  if (std::isnan(v)) return "-";
+  char buf[64];
+  std::snprintf(buf, sizeof buf, format, v);
+  return buf;
+}
+
+std::string label(const std::string& name, int width) {
+  if (static_cast<int>(name.size()) <= width - 2) return name;
+  return name.substr(0, static_cast<std::size_t>(width - 5)) + "...";
+}
+
+/// One table line: a label and one cell per solver.
+template <typename F>
+void line(std::FILE* out, const Comparison& c, int width, const std::string& name, F cellText) {
+  std::fprintf(out, "%-*s", width, label(name, width).c_str());
+  for (const SolverOutcome& o : c.solvers) {
+    const bool ok = o.status == rowfold::Status::ok;
+    std::fprintf(out, "%-*s", kCell, ok ? cellText(o).c_str() : "-");
+  }
+  std::fprintf(out, "\n");
+}
+
+void printWarnings(std::FILE* out, const Comparison& c) {
+  bool any = false;
+  for (const SolverOutcome& o : c.solvers) {
+    const char* name = solverName(o.kind);
+    if (o.refused > 0) {
+      std::fprintf(out, "  %s: %s (%llu rows not seen)\n", name, statusSentence(o.refusal),
+                   static_cast<unsigned long long>(o.refused));
+      any = true;
+    }
+    if (o.status != rowfold::Status::ok) {
+      std::fprintf(out, "  %s: %s\n", name, statusSentence(o.status));
+      any = true;
+    }
+    for (rowfold::Flag f : rowfold::kAllFlags)
+      if (o.summary.flags.has(f)) {
+        std::fprintf(out, "  %s [%s]: %s\n", name, rowfold::nameOf(f), flagSentence(f));
+        any = true;
+      }
+  }
+  if (!any) std::fprintf(out, "  none: every solver's fit looks numerically sound.\n");
+}
+
+}  // namespace
+
+void printTable(std::FILE* out, const Comparison& c) {
+  const auto terms = c.terms();
+  int width = 27;
+  for (const std::string& t : terms) width = std::max(width, std::min(40, static_cast<int>(t.size()) + 2));
+
+  std::fprintf(out, "rowfold-compare: %s\n", c.file.c_str());
+  std::fprintf(out, "response \"%s\"; inputs", c.response.c_str());
+  for (std::size_t j = 0; j < c.inputs.size(); ++j)
+    std::fprintf(out, "%s \"%s\"", j == 0 ? "" : ",", c.inputs[j].c_str());
+  std::fprintf(out, "; %s; forgetting factor %g; weights %s\n", c.intercept ? "intercept fitted" : "no intercept",
+               c.forgetting, c.weights.empty() ? "none (all 1)" : ("\"" + c.weights + "\"").c_str());
+  std::fprintf(out, "rows: %llu data lines, %llu used, %llu skipped with a missing value",
+               static_cast<unsigned long long>(c.rows.dataLines), static_cast<unsigned long long>(c.rows.used),
+               static_cast<unsigned long long>(c.rows.skipped));
+  if (c.rows.skipped > 0)
+    std::fprintf(out, " (first at line %llu)", static_cast<unsigned long long>(c.rows.firstSkippedLine));
+  std::fprintf(out, "\nreference: GivensQr<long double> on the same rows, %d-bit significand%s\n\n", c.referenceBits,
+               c.referenceOk ? "" : " (no reference fit)");
+
+  std::fprintf(out, "%-*s", width, "estimate (std. error)");
+  for (const SolverOutcome& o : c.solvers) std::fprintf(out, "%-*s", kCell, solverName(o.kind));
+  std::fprintf(out, "\n");
+  for (std::size_t t = 0; t < terms.size(); ++t)
+    line(out, c, width, terms[t], [&](const SolverOutcome& o) {
+      const TermValues v = termValues(o.summary, c.intercept, t);
+      return fmt("%.7g", v.estimate) + " (" + fmt("%.3g", v.standardError) + ")";
+    });
+  std::fprintf(out, "\n");
+  line(out, c, width, "residual SE",
+       [](const SolverOutcome& o) { return fmt("%.6g", o.summary.residualStandardError); });
+  line(out, c, width, "R^2", [](const SolverOutcome& o) { return fmt("%.6f", o.summary.rSquared); });
+  line(out, c, width, "rows folded", [](const SolverOutcome& o) { return std::to_string(o.folded); });
+  line(out, c, width, "ns/sample", [](const SolverOutcome& o) { return fmt("%.1f", o.nsPerSample); });
+  line(out, c, width, "deviation from reference", [](const SolverOutcome& o) { return fmt("%.2e", o.maxDeviation); });
+  std::fprintf(out, "\nestimated correct digits\n");
+  for (std::size_t t = 0; t < terms.size(); ++t)
+    line(out, c, width, terms[t],
+         [&](const SolverOutcome& o) { return fmt("%.1f", termValues(o.summary, c.intercept, t).digits); });
+
+  std::fprintf(out, "\nwarnings:\n");
+  printWarnings(out, c);
+  std::fprintf(out,
+               "\n(standard errors and R^2 at level %g; deviation = largest relative difference of a coefficient "
+               "from the reference; ns/sample: time in add() only, varies from run to run)\n",
+               c.level);
+}
+
+}  // namespace rowfold_compare
