@@ -454,6 +454,12 @@ class EstimatorBase {
     return Status::ok;
   }
 
+  template <typename MD>
+  static bool allFiniteFast(const Eigen::MatrixBase<MD>& m) {
+    using S = typename MD::Scalar;
+    return m.size() == 0 || (m.derived().array() * S(0)).sum() == S(0);
+  }
+
   template <typename XD>
   void fold(const Eigen::MatrixBase<XD>& x, Scalar y, Scalar w) {
     const auto step = m_centering.centeredRow(x, y, w, m_lambda, m_fit.intercept, m_row);
@@ -481,10 +487,16 @@ class EstimatorBase {
     if (m_status != Status::ok) return m_status;
     const Eigen::Index n = X.rows();
     if (X.cols() != m_k || y.size() != n || (w != nullptr && w->size() != n)) return Status::wrong_size;
-    for (Eigen::Index i = 0; i < n; ++i) {
-      const Scalar wi = w != nullptr ? Scalar((*w)(i)) : Scalar(1);
-      const Status s = check(X.row(i).transpose(), Scalar(y(i)), wi);
-      if (s != Status::ok) return s;
+    // Every row is validated before anything is folded. One vectorized pass over everything
+    // first (x * 0 is 0 for finite x, NaN otherwise); only when it finds a bad value does the
+    // row-by-row pass run to report the first offending row's Status.
+    const bool clean = allFiniteFast(X) && allFiniteFast(y) && (w == nullptr || (allFiniteFast(*w) && !(w->minCoeff() < 0)));
+    if (!clean) {
+      for (Eigen::Index i = 0; i < n; ++i) {
+        const Scalar wi = w != nullptr ? Scalar((*w)(i)) : Scalar(1);
+        const Status s = check(X.row(i).transpose(), Scalar(y(i)), wi);
+        if (s != Status::ok) return s;
+      }
     }
     if (derived().room() < static_cast<std::uint64_t>(n)) return Status::capacity_full;
     derived().foldRows(X, y, w);

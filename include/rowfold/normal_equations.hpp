@@ -78,22 +78,18 @@ class NormalEquations : public EstimatorBase<NormalEquations<Scalar_, K_, MaxK_>
     m_u = std::sqrt(delta) * d;
     Scalar* const g = m_gram.data();
     const Scalar* __restrict v = m_u.data();
-    // Lower triangle, column by column (contiguous); forgetting fused into the same pass. Small
-    // states update whole columns (the upper triangle too, unused): every column then reads u
-    // from its start, as it was just written, instead of at an offset that straddles two stores
-    // (a store-forwarding stall that dominated small K).
-    const bool square = n <= 16;
+    // Lower triangle, column by column (contiguous); forgetting fused into the same pass.
     if (lambda == Scalar(1)) {
       for (Eigen::Index j = 0; j < n; ++j) {
         Scalar* __restrict gj = g + j * n;
         const Scalar a = v[j];
-        for (Eigen::Index i = square ? 0 : j; i < n; ++i) gj[i] += a * v[i];
+        for (Eigen::Index i = j; i < n; ++i) gj[i] += a * v[i];
       }
     } else {
       for (Eigen::Index j = 0; j < n; ++j) {
         Scalar* __restrict gj = g + j * n;
         const Scalar a = v[j];
-        for (Eigen::Index i = square ? 0 : j; i < n; ++i) gj[i] = lambda * gj[i] + a * v[i];
+        for (Eigen::Index i = j; i < n; ++i) gj[i] = lambda * gj[i] + a * v[i];
       }
     }
   }

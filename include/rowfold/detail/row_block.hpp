@@ -59,7 +59,11 @@ class RowBlock {
     Eigen::Index nb = 0;
     if (w == nullptr) {
       nb = rows - i < cap ? rows - i : cap;
-      m_z.topLeftCorner(nb, k) = X.middleRows(i, nb);
+      if constexpr (K != Eigen::Dynamic) {
+        m_z.topRows(nb).template leftCols<K>() = X.middleRows(i, nb);  // fixed row length: inline copies
+      } else {
+        m_z.topLeftCorner(nb, k) = X.middleRows(i, nb);
+      }
       m_z.col(k).head(nb) = y.segment(i, nb).template cast<Scalar>();
       m_omega.head(nb).setOnes();
       i += nb;
