@@ -120,8 +120,8 @@ const char* sentence(rowfold::Flag f) {
       return "recent samples carried almost no new information: in some direction the estimate rests "
              "on old data.";
     case rowfold::Flag::windup_guarded:
-      return "the windup guard held forgetting back so the estimator would not blow up during the "
-             "quiet period.";
+      return "an input has stopped moving: the windup guard holds its information at a floor so the "
+             "estimator cannot blow up while it is parked.";
   }
   return "unknown flag.";
 }

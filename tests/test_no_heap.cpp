@@ -49,7 +49,15 @@ struct Make {
   using Scalar = S;
   static Type make() {
     typename Type::Options o;
-    o.forgetting = 0.995;
+    o.forgetting = 0.995;  // windup guard active on the factor estimators
+    if constexpr (Type::guardable) {  // every guard path: outlier gate, Huber, regularization, VFF, CUSUM
+      o.outliers.enabled = true;
+      o.outliers.warmup = 5;
+      o.outliers.huber = true;
+      o.windup.regularization = 1e-3;
+      o.windup.variableForgetting = true;
+      o.windup.changeThreshold = 5;
+    }
     return Type(4, o);
   }
 };
@@ -78,6 +86,7 @@ TEST_CASE_TEMPLATE_DEFINE("no heap in the hot path", F, noheap_id) {
   // Construction and output objects may allocate (dynamic K); nothing after that.
   Est est = F::make();
   Est other = F::make();
+  Est part = F::make();
   typename Est::SolutionType sol(4);
   typename Est::SummaryType sum(4);
   typename Est::ConditioningType cond(4);
@@ -89,6 +98,7 @@ TEST_CASE_TEMPLATE_DEFINE("no heap in the hot path", F, noheap_id) {
     y(i) = Scalar(g.next());
   }
   x0.setConstant(Scalar(0.5));
+  for (int i = 0; i < 8; ++i) REQUIRE(part.add(Eigen::Matrix<Scalar, 4, 1>(X.row(i).transpose()), y(i)) == Status::ok);
   std::vector<unsigned char> image(est.snapshotSize() + 64 * 4 * 8 * sizeof(Scalar));
 
   rowfold_test::eigenAssertHits = 0;
@@ -103,6 +113,10 @@ TEST_CASE_TEMPLATE_DEFINE("no heap in the hot path", F, noheap_id) {
     (void)est.add(x, yy);
   }
   const Status rows = est.addRows(X, y);
+  const Status merged = est.merge(part);
+  (void)est.relax(Scalar(0.9));
+  (void)est.advance(2);
+  (void)est.addDelayed(x, Scalar(1), 3);
   (void)est.solveInto(sol);
   (void)est.summarizeInto(sum, Scalar(0.95));
   (void)est.conditioningInto(cond);
@@ -120,6 +134,7 @@ TEST_CASE_TEMPLATE_DEFINE("no heap in the hot path", F, noheap_id) {
   CHECK(rowfold_test::newCalls.load() == 0);
   // The calls did real work (a fence around nothing would prove nothing).
   CHECK(rows == Status::ok);
+  CHECK(merged == Status::ok);
   CHECK(sol.status == Status::ok);
   CHECK(sum.status == Status::ok);
   CHECK(cond.status == Status::ok);

@@ -118,6 +118,7 @@ void properties(std::uint64_t seed) {
         typename E::Type::Options o;
         o.forgetting = lambda;
         o.intercept = mode;
+        o.windup.enabled = false;  // the guard's held steps depend on the state the rows meet
         typename E::Type whole(k, o), a(k, o), b(k, o);
         for (Eigen::Index i = 0; i < n; ++i) {
           const Vec x = p.X.row(i).transpose();

@@ -46,11 +46,21 @@ void* operator new(std::size_t n) {
   if (void* p = std::malloc(n ? n : 1)) return p;
   std::abort();
 }
-void* operator new[](std::size_t n) { return operator new(n); }
-void operator delete(void* p) noexcept { std::free(p); }
-void operator delete[](void* p) noexcept { std::free(p); }
-void operator delete(void* p, std::size_t) noexcept { std::free(p); }
-void operator delete[](void* p, std::size_t) noexcept { std::free(p); }
+void* operator new[](std::size_t n) {
+  return operator new(n);
+}
+void operator delete(void* p) noexcept {
+  std::free(p);
+}
+void operator delete[](void* p) noexcept {
+  std::free(p);
+}
+void operator delete(void* p, std::size_t) noexcept {
+  std::free(p);
+}
+void operator delete[](void* p, std::size_t) noexcept {
+  std::free(p);
+}
 
 namespace {
 
@@ -126,7 +136,7 @@ void feedNist(Est& est, const rowfold_test::NistDataset& ds) {
   }
 }
 
-const char* const kSets[] = {"Norris", "Pontius", "NoInt1", "NoInt2", "Filip", "Longley",
+const char* const kSets[] = {"Norris",   "Pontius",  "NoInt1",   "NoInt2",   "Filip",   "Longley",
                              "Wampler1", "Wampler2", "Wampler3", "Wampler4", "Wampler5"};
 // test_nist.cpp's BatchQr thresholds in double (the core issue's figures), same order.
 const double kBatchBeta[] = {13.5, 13, 14, 14, 7.3, 14, 13.5, 13, 13, 13, 13};
@@ -228,7 +238,8 @@ TEST_CASE("BatchQr slide: forgetting ages follow arrival order; statistics and i
     const auto ri = image(ring), fi = image(fresh);
     const std::size_t stateBytes = 8 + std::size_t(cap) * std::size_t(k + 2) * sizeof(double);
     REQUIRE(ri.size() == fi.size());
-    CHECK(std::equal(ri.end() - 4 - std::ptrdiff_t(stateBytes), ri.end() - 4, fi.end() - 4 - std::ptrdiff_t(stateBytes)));
+    CHECK(
+        std::equal(ri.end() - 4 - std::ptrdiff_t(stateBytes), ri.end() - 4, fi.end() - 4 - std::ptrdiff_t(stateBytes)));
     // Restored into another ring, it continues bit-identically.
     rowfold::BatchQr<double, Eigen::Dynamic> back(k, so);
     REQUIRE(back.restore(ri.data(), ri.size()) == Status::ok);
@@ -290,7 +301,8 @@ E freshFit(const std::vector<Vec<double>>& xs, const std::vector<double>& ys, st
            double lambda) {
   typename E::Options o;
   E e(xs[0].size(), o);
-  for (std::size_t t = from; t < to; ++t) REQUIRE(e.add(xs[t], ys[t], std::pow(lambda, double(to - 1 - t))) == Status::ok);
+  for (std::size_t t = from; t < to; ++t)
+    REQUIRE(e.add(xs[t], ys[t], std::pow(lambda, double(to - 1 - t))) == Status::ok);
   return e;
 }
 
@@ -345,8 +357,9 @@ void windowMatchesFresh(double lambda, double power) {
     }
   }
   const char* names[] = {"", "BatchQr", "GivensQr", "NormalEquations", "ForgettingRls"};
-  MESSAGE(std::string(names[int(E::kind)]) << " BlockWindow vs fresh fit, lambda " << lambda << ": worst |db|/|b| / (u kappa_s^"
-          << power << ") = " << worst << ", worst |db_j|/|b_j| / 10^-digits_j = " << worstDigits);
+  MESSAGE(std::string(names[int(E::kind)])
+          << " BlockWindow vs fresh fit, lambda " << lambda << ": worst |db|/|b| / (u kappa_s^" << power
+          << ") = " << worst << ", worst |db_j|/|b_j| / 10^-digits_j = " << worstDigits);
 }
 
 }  // namespace
@@ -364,16 +377,19 @@ TEST_CASE("BlockWindow: the window fit equals a fresh fit of exactly the rows in
 
 TEST_CASE("BlockWindow: junk pushed out by a NIST StRD set gives its certified values") {
   // NIST certified values. Thresholds: test_merge.cpp's merged-state thresholds (the window is a
-  // merge of blocks) for GivensQr and NormalEquations; ForgettingRls has its own, below.
+  // merge of blocks) for GivensQr and NormalEquations. ForgettingRls: our measured values less
+  // one digit (measured, x86-64 g++ 12 -O3: Longley 13.2, Norris 12.1, Pontius 11.9, Wampler1
+  // 7.6; its blocks are merged through factors rebuilt from P, as in test_merge.cpp, with up to
+  // eight blocks here instead of three, so test_merge's Pontius figure of 12 is not reached).
   struct Case {
     const char* set;
     Eigen::Index blocks, rows;  // B b = n
     double givens, normal, rls;
   };
-  const Case cases[] = {{"Longley", 4, 4, 11, 10.5, 9.5},
-                        {"Norris", 6, 6, 11, 11, 10.5},
-                        {"Pontius", 8, 5, 10.5, 10, 10.5},
-                        {"Wampler1", 3, 7, 8, 5.5, 5.5}};
+  const Case cases[] = {{"Longley", 4, 4, 11, 10.5, 12.2},
+                        {"Norris", 6, 6, 11, 11, 11.1},
+                        {"Pontius", 8, 5, 10.5, 10, 10.9},
+                        {"Wampler1", 3, 7, 8, 5.5, 6.6}};
   for (const Case& c : cases) {
     const std::string set(c.set);
     CAPTURE(set);
@@ -391,9 +407,15 @@ TEST_CASE("BlockWindow: junk pushed out by a NIST StRD set gives its certified v
       REQUIRE(sum.status == Status::ok);
       return score(sum, ds);
     };
-    struct G { using type = rowfold::GivensQr<double, Eigen::Dynamic>; };
-    struct N { using type = rowfold::NormalEquations<double, Eigen::Dynamic>; };
-    struct R { using type = rowfold::ForgettingRls<double, Eigen::Dynamic>; };
+    struct G {
+      using type = rowfold::GivensQr<double, Eigen::Dynamic>;
+    };
+    struct N {
+      using type = rowfold::NormalEquations<double, Eigen::Dynamic>;
+    };
+    struct R {
+      using type = rowfold::ForgettingRls<double, Eigen::Dynamic>;
+    };
     const Lres g = run(G{}), n = run(N{}), r = run(R{});
     MESSAGE(set << " BlockWindow beta LRE: GivensQr " << g.beta << ", NormalEquations " << n.beta << ", ForgettingRls "
                 << r.beta << "; GivensQr sd " << g.sd << " resSd " << g.resSd << " R2 " << g.r2);
@@ -404,6 +426,19 @@ TEST_CASE("BlockWindow: junk pushed out by a NIST StRD set gives its certified v
     CHECK(g.resSd >= 10);
     CHECK(g.r2 >= 10);
   }
+}
+
+TEST_CASE("BlockWindow in float: Longley through a GivensQr window reaches the float threshold") {
+  // NIST certified values; float threshold of test_nist.cpp for the QR estimators: Longley 3.5
+  // (measured 4.3).
+  const auto ds = rowfold_test::loadNist("Longley");
+  rowfold::BlockWindow<rowfold::GivensQr<float, 6>, 4> win(4);
+  feedJunk(win, 6, 12, 4);
+  feedNist(win, ds);
+  REQUIRE(win.count() == 16u);
+  const Lres r = score(win.summarize(), ds);
+  MESSAGE("Longley float BlockWindow<GivensQr> beta LRE " << r.beta);
+  CHECK(r.beta >= 3.5);
 }
 
 TEST_CASE("BlockWindow: rejected samples and refused options leave everything untouched") {
@@ -424,7 +459,8 @@ TEST_CASE("BlockWindow: rejected samples and refused options leave everything un
   CHECK(win.count() == 9u);
   // Options the window refuses.
   CHECK(rowfold::BlockWindow<G, 3>(0).status() == Status::invalid_options);
-  CHECK(rowfold::BlockWindow<rowfold::GivensQr<double, Eigen::Dynamic>>(2, 0, 4, {}).status() == Status::invalid_options);
+  CHECK(rowfold::BlockWindow<rowfold::GivensQr<double, Eigen::Dynamic>>(2, 0, 4, {}).status() ==
+        Status::invalid_options);
   CHECK(rowfold::BlockWindow<G, 3>(2, 4, 4, {}).status() == Status::wrong_size);
   rowfold::ForgettingRlsOptions prior;
   prior.start = rowfold::RlsStart::prior;
@@ -565,6 +601,29 @@ TEST_CASE("GivensQr remove: Longley plus invented rows, the extras removed, give
   CHECK(r.sd >= 9);
   CHECK(r.resSd >= 9);
   CHECK(r.r2 >= 10);
+}
+
+TEST_CASE("GivensQr remove without intercept: NoInt1 plus invented rows, extras removed") {
+  // Reference: NIST StRD NoInt1 certified values (model y = B1 x through the origin).
+  const auto ds = rowfold_test::loadNist("NoInt1");
+  rowfold::GivensQrOptions o;
+  o.intercept = rowfold::Intercept::none;
+  rowfold::GivensQr<double, 1> fit(o);
+  Lcg g(41);
+  std::vector<std::pair<Eigen::Matrix<double, 1, 1>, double>> extra;
+  for (int i = 0; i < 6; ++i) {
+    Eigen::Matrix<double, 1, 1> x;
+    x << 60 + 10 * g.next();  // invented
+    extra.push_back({x, 3 * x(0) + 5 * g.next()});
+    REQUIRE(fit.add(extra.back().first, extra.back().second) == Status::ok);
+  }
+  feedNist(fit, ds);
+  for (const auto& e : extra) REQUIRE(fit.remove(e.first, e.second) == Status::ok);
+  CHECK(fit.count() == ds.observations());
+  const Lres r = score(fit.summarize(), ds);
+  MESSAGE("NoInt1 after downdating: beta LRE " << r.beta << " sd " << r.sd << " resSd " << r.resSd);
+  CHECK(r.beta >= 13);  // measured 14.6 (x86-64, g++ 12 -O3), less 1.5 digits of margin
+  CHECK(r.resSd >= 10);
 }
 
 TEST_CASE("GivensQr remove: an impossible downdate returns not_definite and leaves the image unchanged") {

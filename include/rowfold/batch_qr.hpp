@@ -48,19 +48,19 @@ struct BatchQrOptions : FitOptions {
 ///
 /// **Sliding window (`options.slide`):** the buffer is a ring; when it is full the oldest row is
 /// overwritten, so the fit is exactly the least-squares fit of the last `capacity` rows, solved
-/// from scratch (no downdating: nothing can lose definiteness, and the accuracy is that of a
-/// batch fit of those rows; NUMERICS §3). Under forgetting a row's age is its position counted
-/// from the newest row of the window, whatever its slot in the buffer, and the solve takes the
-/// rows in arrival order, so it is bit-identical to that of a non-sliding state fed the same rows. count(), weightSum() and
-/// effectiveCount() (so every statistic) describe the rows in the window: n, W = sum w lambda^age,
-/// F = sum lambda^age, F2 = sum lambda^(2 age) over the window (F and F2 by position: relax()
-/// scales the stored weights, hence W, but not F and F2). `centering()` is the base
-/// class's running record of every row ever folded and is not used by this estimator's fit.
-/// A snapshot holds the window's rows oldest first (restore puts them back in that order), so
-/// it equals the image of a non-sliding state fed exactly those rows, apart from the option
-/// byte and the centering record. `merge` folds the other state's rows in after this state's,
-/// oldest first, as if added one by one: the window keeps the last `capacity` of them (never
-/// capacity_full). Cost: add O(K) whether or not a row is dropped; merge O(n K).
+/// from scratch (no downdating: nothing can lose definiteness, and the accuracy is that of a batch
+/// fit of those rows; NUMERICS §3). Under forgetting a row's age is its position counted from the
+/// newest row of the window, whatever its slot in the buffer, and the solve takes the rows in
+/// arrival order, so it is bit-identical to that of a non-sliding state fed the same rows. count(),
+/// weightSum() and effectiveCount() (so every statistic) describe the rows in the window: n, W =
+/// sum w lambda^age, F = sum lambda^age, F2 = sum lambda^(2 age) over the window (F and F2 by
+/// position: relax() scales the stored weights, hence W, but not F and F2). `centering()` is the
+/// base class's running record of every row ever folded and is not used by this estimator's fit. A
+/// snapshot holds the window's rows oldest first (restore puts them back in that order), so it
+/// equals the image of a non-sliding state fed exactly those rows, apart from the option byte and
+/// the centering record. `merge` folds the other state's rows in after this state's, oldest first,
+/// as if added one by one: the window keeps the last `capacity` of them (never capacity_full).
+/// Cost: add O(K) whether or not a row is dropped; merge O(n K).
 template <typename Scalar_, int K_, int Capacity_ = Eigen::Dynamic, int MaxK_ = K_>
 class BatchQr : public EstimatorBase<BatchQr<Scalar_, K_, Capacity_, MaxK_>, Scalar_, K_, MaxK_> {
   using Base = EstimatorBase<BatchQr<Scalar_, K_, Capacity_, MaxK_>, Scalar_, K_, MaxK_>;
@@ -74,6 +74,11 @@ class BatchQr : public EstimatorBase<BatchQr<Scalar_, K_, Capacity_, MaxK_>, Sca
   using Options = BatchQrOptions;
   static constexpr detail::ErrorModel errorModel = detail::ErrorModel::refined_raw;
   static constexpr EstimatorKind kind = EstimatorKind::batch_qr;
+  /// Ages are positional and the solve is a batch: no windup guard or outlier gate.
+  static constexpr bool guardable = false;
+  /// A row's age is its position: a late row would age the rows before it, so addDelayed and
+  /// advance refuse (not_available) under forgetting.
+  static constexpr bool positionalAges = true;
   using RowMatrix = Eigen::Matrix<Scalar, Eigen::Dynamic, K_, Eigen::ColMajor, Capacity_, MaxK_>;
   using Column = Eigen::Matrix<Scalar, Eigen::Dynamic, 1, Eigen::ColMajor, Capacity_, 1>;
   using Design = Eigen::Matrix<Scalar, Eigen::Dynamic, Dims::K1, Eigen::ColMajor, Capacity_, Dims::MaxK1>;
@@ -205,6 +210,12 @@ class BatchQr : public EstimatorBase<BatchQr<Scalar_, K_, Capacity_, MaxK_>, Sca
     const Scalar denominator = power == 1 ? q : q * (Scalar(1) + lambda);
     return -std::expm1(p * n * std::log1p(-q)) / denominator;
   }
+
+  void ageState(Scalar f) { m_w.head(m_n) *= f; }
+  bool priorInfo(const Vector1&, Scalar&, Scalar&) const { return false; }
+  void ageResidual(Scalar) {}
+  template <typename VD>
+  bool currentSlopes(VD&) const { return false; }
 
   Status canMerge(const BatchQr& other) const {
     return room() < static_cast<std::uint64_t>(other.m_n) ? Status::capacity_full : Status::ok;

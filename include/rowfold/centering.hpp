@@ -143,9 +143,11 @@ class Centering {
   }
 
   /// Commits the sample to the means and sums (call after the estimator folded `row`).
+  /// `aged` is the sample's own forgetting weight lambda^age (1 for a sample of this step; less
+  /// for a delayed sample), which enters F and F2.
   template <typename XD>
   void commit(const Eigen::MatrixBase<XD>& x, Scalar y, Scalar w, Scalar lambda, Intercept mode,
-              const Vector1& row) {
+              const Vector1& row, Scalar aged = Scalar(1)) {
     const Eigen::Index k = m_xbar.size();
     const Scalar wNew = lambda * m_weight + w;
     if (mode == Intercept::fit) {
@@ -155,8 +157,8 @@ class Centering {
     }
     m_syy = lambda * m_syy + row(k) * row(k);
     m_weight = wNew;
-    m_forget = lambda * m_forget + Scalar(1);
-    m_forget2 = lambda * lambda * m_forget2 + Scalar(1);
+    m_forget = lambda * m_forget + aged;
+    m_forget2 = lambda * lambda * m_forget2 + aged * aged;
     ++m_count;
   }
 
@@ -251,6 +253,14 @@ class Centering {
     m_forget = age * m_forget + other.m_forget;
     m_forget2 = age * age * m_forget2 + other.m_forget2;
     m_count += other.m_count;
+  }
+
+  /// Multiplies the remembered weight by f (means unchanged): W, Syy and F by f, F2 by f^2.
+  void age(Scalar f) {
+    m_weight *= f;
+    m_syy *= f;
+    m_forget *= f;
+    m_forget2 *= f * f;
   }
 
   /// Visits every state field in a fixed order (snapshot/restore; Self may be const).

@@ -11,6 +11,7 @@
 #include "rowfold/centering.hpp"
 #include "rowfold/detail/analysis.hpp"
 #include "rowfold/detail/dims.hpp"
+#include "rowfold/detail/guard.hpp"
 #include "rowfold/detail/workspace.hpp"
 #include "rowfold/options.hpp"
 #include "rowfold/results.hpp"
@@ -35,8 +36,9 @@ namespace rowfold {
 /// - `void foldRow(const XD& x, Scalar y, Scalar w, const Vector1& d, Scalar delta)`: age the
 ///   state by lambda and fold the centered row d = [x - xbar, y - ybar] with weight delta, i.e.
 ///   the co-moments gain delta d d' (delta = c^2 of NUMERICS §4.1; no square root is taken, the
-///   estimator takes one only if its form needs it). Raw x, y, w are given for estimators that
-///   keep raw data;
+///   estimator takes one only if its form needs it; the guards pass already scaled pseudo-rows
+///   with delta = 1). Age by `lambda()`, the step factor (the guards may change it per sample).
+///   Raw x, y, w are given for estimators that keep raw data;
 /// - optionally `void foldRows(X, y, w)`: fold validated rows (w == nullptr: unit weights) in
 ///   blocks; the default folds them one at a time;
 /// - `std::uint64_t room() const`: how many more samples fit (capacity-bound estimators);
@@ -44,7 +46,15 @@ namespace rowfold {
 /// - `bool factorize(Workspace&) const`: fill R, z, rho, b, intercept, means, W, SST;
 /// - `static constexpr detail::ErrorModel errorModel` and `static constexpr EstimatorKind kind`;
 /// - `static void visitOptions(Self&, V&)` and `static void visitState(Self&, V&)`: the fields of
-///   its options and state, in a fixed order, for snapshot/restore.
+///   its options and state, in a fixed order, for snapshot/restore;
+/// - `Status canMerge(const Derived&) const` and `void mergeState(const Derived&, Scalar age,
+///   const Vector1& correction)`: combine another state (merge);
+/// - `void ageState(Scalar f)`: multiply its information by f (relax, advance);
+/// - for the guards: `static constexpr bool guardable`, `bool priorInfo(row, h, e) const`
+///   (leverage h = phi'M^-1 phi and prediction error e of a scaled row from the current state),
+///   `void ageResidual(Scalar f)` (forget the residual sum only) and
+///   `bool currentSlopes(Vector&) const`; `static constexpr bool positionalAges` (true if a
+///   sample's age is its position, so late samples cannot be placed).
 /// Estimators may shadow `solveInto` with a cheaper path (back substitution, RLS theta).
 ///
 /// Allocation: fixed K allocates nothing, ever. Eigen::Dynamic K allocates in the constructor
@@ -68,6 +78,7 @@ class EstimatorBase {
   using ConditioningType = Conditioning<Scalar, K, MaxK>;
   using PredictionType = Prediction<Scalar>;
   using WorkspaceType = detail::Workspace<Scalar, K, MaxK>;
+  using GuardStateType = detail::GuardState<Scalar, K, MaxK>;
 
   /// Number of regressors K (excluding the intercept).
   Eigen::Index regressors() const { return m_k; }
@@ -75,11 +86,14 @@ class EstimatorBase {
   Status status() const { return m_status; }
   const FitOptions& fitOptions() const { return m_fit; }
   /// Accepted samples (weight > 0).
-  std::uint64_t count() const { return m_centering.count(); }
+  std::uint64_t count() const { return derived().memoryCount(); }
   /// Sum of forgotten sample weights W.
-  Scalar weightSum() const { return m_centering.weightSum(); }
+  Scalar weightSum() const { return derived().memoryWeight(); }
   /// Effective sample size F^2/F2 (= count when lambda = 1).
-  Scalar effectiveCount() const { return m_centering.effectiveCount(); }
+  Scalar effectiveCount() const {
+    const Scalar f2 = derived().memoryForget2();
+    return f2 > Scalar(0) ? derived().memoryForget() * derived().memoryForget() / f2 : Scalar(0);
+  }
   const Centering<Scalar, K, MaxK>& centering() const { return m_centering; }
 
   /// Folds one sample with weight 1.
@@ -87,6 +101,8 @@ class EstimatorBase {
   Status add(const Eigen::MatrixBase<XD>& x, Scalar y) { return add(x, y, Scalar(1)); }
 
   /// Folds one sample (x, y) with weight w >= 0. A zero weight is accepted and changes nothing.
+  /// Returns nonfinite_input, negative_weight, wrong_size, capacity_full, invalid_options (bad
+  /// construction options) or outlier (the gate refused it); then the state is untouched.
   template <typename XD>
   Status add(const Eigen::MatrixBase<XD>& x, Scalar y, Scalar w) {
     static_assert(std::is_same<typename XD::Scalar, Scalar>::value, "rowfold: x must have the estimator's Scalar");
@@ -94,7 +110,42 @@ class EstimatorBase {
     if (s != Status::ok) return s;
     if (w == Scalar(0)) return Status::ok;
     if (derived().room() == 0) return Status::capacity_full;
-    fold(x, y, w);
+    if (m_guarded) return guardedFold(x, y, w);
+    fold(x, y, w, m_lambda);
+    return Status::ok;
+  }
+
+  /// Folds a sample measured `age` steps ago (a lab result that arrives late): it enters with
+  /// its forgetting weight lambda^age and the state is not aged for it, so the fit is the one
+  /// it would have been had the sample come on time — provided the step it belongs to was
+  /// marked with advance() (exact in exact arithmetic: the co-moments are sums over samples
+  /// with weights w lambda^age, whatever the order; NUMERICS §4.1). The outlier gate applies;
+  /// the windup guard never holds it back (no forgetting happens). Same Status as add();
+  /// BatchQr under forgetting returns not_available (its ages are row positions).
+  template <typename XD>
+  Status addDelayed(const Eigen::MatrixBase<XD>& x, Scalar y, std::uint64_t age, Scalar w = Scalar(1)) {
+    static_assert(std::is_same<typename XD::Scalar, Scalar>::value, "rowfold: x must have the estimator's Scalar");
+    const Status s = check(x, y, w);
+    if (s != Status::ok) return s;
+    if (w == Scalar(0)) return Status::ok;
+    if (derived().room() == 0) return Status::capacity_full;
+    if (Derived::positionalAges && m_lambda != Scalar(1)) return Status::not_available;
+    const Scalar aged = Centering<Scalar, K, MaxK>::agingFactor(m_lambda, age);
+    if (!(aged > Scalar(0))) return Status::ok;  // older than the memory can represent: no weight left
+    if (m_guarded) return guardedFold(x, y, w, aged);
+    foldAged(x, y, w, aged);
+    return Status::ok;
+  }
+
+  /// Marks `steps` sampling steps that passed without a sample (e.g. the sample of this step
+  /// will arrive later through addDelayed): the state is aged by lambda^steps. Nothing happens
+  /// with lambda = 1 or an empty state; BatchQr under forgetting returns not_available.
+  /// Never allocates.
+  Status advance(std::uint64_t steps = 1) {
+    if (derived().status() != Status::ok) return derived().status();
+    if (m_lambda == Scalar(1) || steps == 0 || count() == 0) return Status::ok;
+    if (Derived::positionalAges) return Status::not_available;
+    relaxState(Centering<Scalar, K, MaxK>::agingFactor(m_lambda, steps));
     return Status::ok;
   }
 
@@ -105,7 +156,8 @@ class EstimatorBase {
   }
 
   /// Folds the rows of X (n x K) with responses y (n). All-or-nothing: every row is validated
-  /// first; on any reject nothing is folded and the first reject's Status is returned.
+  /// first; on any reject nothing is folded and the first reject's Status is returned. With the
+  /// outlier gate on, a row the gate refuses is skipped and counted (guardCounters()).
   template <typename XD, typename YD>
   Status addRows(const Eigen::MatrixBase<XD>& X, const Eigen::MatrixBase<YD>& y) {
     return addRowsImpl(X, y, static_cast<const Vector*>(nullptr));
@@ -118,8 +170,10 @@ class EstimatorBase {
 
   /// Merges the state `other` into this one: afterwards this estimator holds the fit of this
   /// state's samples *followed by* other's samples, as if they had been folded here one by one.
-  /// With forgetting, this state is first aged by lambda^n (n = other.count()); with lambda = 1
-  /// the merge is symmetric. Centered states combine with the pairwise formula of Chan, Golub &
+  /// With forgetting, this state is first aged by lambda^n (n = samples folded into other); with
+  /// lambda = 1 the merge is symmetric. With the windup guard on (lambda < 1), steps the guard
+  /// held depend on the state a sample met, so a merge then differs from sequential folding by
+  /// those held steps. Centered states combine with the pairwise formula of Chan, Golub &
   /// LeVeque (1979): the means are pooled and the row sqrt(Wa Wb / W) (mean_b - mean_a) is
   /// folded in with the other state (NUMERICS §4.1, §5). Each estimator combines its own form:
   /// stacked-factor QR (GivensQr), added co-moments (NormalEquations), co-moments rebuilt from
@@ -140,18 +194,51 @@ class EstimatorBase {
     if (o.count() == 0) return Status::ok;
     const Status s = derived().canMerge(other);
     if (s != Status::ok) return s;
-    const Scalar age = Centering<Scalar, K, MaxK>::agingFactor(m_lambda, o.count());
+    const Scalar age = Centering<Scalar, K, MaxK>::agingFactor(m_lambda, o.m_centering.count());
     m_centering.mergeRow(o.m_centering, age, m_fit.intercept, m_row);
     derived().mergeState(other, age, m_row);
     m_centering.commitMerge(o.m_centering, age, m_fit.intercept, m_row);
+    m_guard.spread = age * m_guard.spread + o.m_guard.spread + m_row.head(m_k).cwiseAbs2();
+    m_guard.peak = m_guard.peak.cwiseMax(o.m_guard.peak).cwiseMax(m_guard.spread);
+    if (!m_guard.scaleReady(m_fit.outliers.warmup)) {
+      m_guard.scale2 = o.m_guard.scale2;
+      m_guard.warmSum = o.m_guard.warmSum;
+      m_guard.warmCount = o.m_guard.warmCount;
+    }
     return Status::ok;
   }
 
-  /// Forgets everything (options kept).
+  /// Forgets everything (options and the nominal model kept; guard counters cleared).
   void reset() {
     m_centering.reset();
+    m_guard.reset();
+    m_counters = GuardCounters();
     derived().clearState();
   }
+
+  /// Multiplies the information of the state by f in (0, 1] at once (W, the co-moments, F and
+  /// the guard's spreads; the estimate is unchanged): a soft covariance reset that makes the
+  /// estimator alert again after a known change (Goodwin & Sin 1984 resetting, in
+  /// information form). `invalid_options` for f outside (0, 1]; never allocates.
+  Status relax(Scalar f) {
+    if (derived().status() != Status::ok) return derived().status();
+    if (!(f > Scalar(0) && f <= Scalar(1))) return Status::invalid_options;
+    if (count() != 0 && f != Scalar(1)) relaxState(f);
+    return Status::ok;
+  }
+
+  /// Sets theta0, the nominal slopes that regularized forgetting pulls unexcited directions
+  /// toward (WindupOptions::regularization; NUMERICS §2.3: use the last validated model, not 0).
+  template <typename VD>
+  Status setNominal(const Eigen::MatrixBase<VD>& theta0) {
+    if (theta0.size() != m_k) return Status::wrong_size;
+    if (!theta0.allFinite()) return Status::nonfinite_input;
+    m_guard.nominal = theta0.template cast<Scalar>();
+    return Status::ok;
+  }
+
+  /// What the windup guard and the outlier gate did (see GuardCounters).
+  const GuardCounters& guardCounters() const { return m_counters; }
 
   /// Coefficients. Cost depends on the estimator (see its class comment).
   SolutionType solve() const {
@@ -197,6 +284,7 @@ class EstimatorBase {
       return out.status;
     }
     detail::analyzeSummary(m_work, facts(), level, out);
+    out.flags.set(guardFlags());
     return out.status;
   }
 
@@ -218,6 +306,7 @@ class EstimatorBase {
     }
     detail::analyzeConditioning(m_work, facts(), out);
     out.flags.set(m_work.flags);
+    out.flags.set(guardFlags());
     return out.status;
   }
 
@@ -284,21 +373,23 @@ class EstimatorBase {
     if (std::memcmp(expect, image, hs) != 0) return Status::image_mismatch;
     // Options must match byte for byte; then the state must have exactly the expected size.
     detail::ImageCounter optionBytes;
-    Derived::visitOptions(derived(), optionBytes);
-    unsigned char ownOptions[64];
+    visitOptionsAll(derived(), optionBytes);
+    unsigned char ownOptions[256];
     if (optionBytes.bytes > sizeof ownOptions) return Status::image_mismatch;
     detail::ImageWriter ow{ownOptions};
-    Derived::visitOptions(derived(), ow);
+    visitOptionsAll(derived(), ow);
     const unsigned char* p = image + hs;
     if (optionBytes.bytes > payload || std::memcmp(ownOptions, p, optionBytes.bytes) != 0) return Status::image_mismatch;
     detail::ImageCounter centerBytes;
     Centering<Scalar, K, MaxK>::visitState(m_centering, centerBytes);
+    GuardStateType::visitState(m_guard, centerBytes);
     const std::size_t head = optionBytes.bytes + centerBytes.bytes;
     if (head > payload) return Status::corrupt_image;
     const std::size_t stateBytes = derived().expectedStateBytes(p + head, payload - head);
     if (head + stateBytes != payload) return Status::image_mismatch;
     detail::ImageReader r{p + optionBytes.bytes};
     Centering<Scalar, K, MaxK>::visitState(m_centering, r);
+    GuardStateType::visitState(m_guard, r);
     Derived::visitState(derived(), r);
     return Status::ok;
   }
@@ -337,18 +428,25 @@ class EstimatorBase {
       : m_fit(fit),
         m_k(k),
         m_lambda(static_cast<Scalar>(fit.forgetting)),
+        m_step(static_cast<Scalar>(fit.forgetting)),
         m_centering(k),
+        m_guard(k),
         m_work(k),
         m_row(k + 1),
         m_solution(k) {
     m_status = (K != Eigen::Dynamic && k != K) || k <= 0 ? Status::wrong_size : validate(fit);
     m_row.setZero();
+    if (m_status == Status::ok && fit.outliers.enabled && !Derived::guardable) m_status = Status::invalid_options;
+    m_guarded = Derived::guardable && m_status == Status::ok &&
+                ((fit.forgetting < 1.0 && fit.windup.enabled) || fit.outliers.enabled);
   }
 
   Derived& derived() { return static_cast<Derived&>(*this); }
   const Derived& derived() const { return static_cast<const Derived&>(*this); }
 
-  Scalar lambda() const { return m_lambda; }
+  /// Forgetting factor of the sample being folded (the windup guard may hold it at 1); the
+  /// nominal lambda outside a fold.
+  Scalar lambda() const { return m_step; }
   Intercept interceptMode() const { return m_fit.intercept; }
   WorkspaceType& work() const { return m_work; }
 
@@ -366,6 +464,7 @@ class EstimatorBase {
 
   void finishSolution(SolutionType& out) const {
     out.status = Status::ok;
+    out.flags.set(guardFlags());
     const Eigen::Index p = m_k + (m_fit.intercept == Intercept::fit ? 1 : 0);
     if (!(effectiveCount() > Scalar(p))) out.flags.set(Flag::too_few_samples);
     if (out.rank < m_k) out.flags.set(Flag::rank_deficient);
@@ -403,6 +502,13 @@ class EstimatorBase {
     return out.status;
   }
 
+  /// What the fit remembers: samples, W, F and F2. By default everything the centering has
+  /// seen; an estimator with a finite window (samples leave it) shadows these four.
+  std::uint64_t memoryCount() const { return m_centering.count(); }
+  Scalar memoryWeight() const { return m_centering.weightSum(); }
+  Scalar memoryForget() const { return m_centering.forgetSum(); }
+  Scalar memoryForget2() const { return m_centering.forgetSum2(); }
+
   /// Default: the state has a fixed size, the one it has now.
   std::size_t expectedStateBytes(const unsigned char*, std::size_t) const {
     detail::ImageCounter c;
@@ -412,9 +518,9 @@ class EstimatorBase {
 
   detail::SampleFacts<Scalar> facts() const {
     detail::SampleFacts<Scalar> f;
-    f.count = m_centering.count();
-    f.forget = m_centering.forgetSum();
-    f.forget2 = m_centering.forgetSum2();
+    f.count = derived().memoryCount();
+    f.forget = derived().memoryForget();
+    f.forget2 = derived().memoryForget2();
     f.intercept = m_fit.intercept;
     f.vifLimit = static_cast<Scalar>(m_fit.vifLimit);
     f.model = Derived::errorModel;
@@ -424,9 +530,38 @@ class EstimatorBase {
  private:
   template <typename Self, typename C, typename V>
   static void visitPayload(Self& self, C& centering, V& v) {
-    Derived::visitOptions(self, v);
+    visitOptionsAll(self, v);
     Centering<Scalar, K, MaxK>::visitState(centering, v);
+    GuardStateType::visitState(self.EstimatorBase::m_guard, v);
     Derived::visitState(self, v);
+  }
+
+  /// The guard options, then the estimator's own options (restore compares them byte for byte).
+  template <typename Self, typename V>
+  static void visitOptionsAll(Self& self, V& v) {
+    const FitOptions& f = self.EstimatorBase::m_fit;
+    const WindupOptions& g = f.windup;
+    const OutlierOptions& q = f.outliers;
+    const std::uint8_t switches = static_cast<std::uint8_t>((g.enabled ? 1 : 0) | (g.variableForgetting ? 2 : 0) |
+                                                            (q.enabled ? 4 : 0) | (q.huber ? 8 : 0));
+    const double values[] = {g.informationGate, g.spreadFloor,    g.regularization, g.minForgetting,
+                             g.changeThreshold, g.changeDrift,    g.changeRelax,    q.threshold,
+                             q.leverageLimit,   q.scaleMemory,    q.lockoutRelax,   q.huberThreshold};
+    const std::int32_t counts[] = {q.warmup, q.lockoutLimit};
+    visitConst(v, switches);
+    for (double d : values) visitConst(v, d);
+    for (std::int32_t c : counts) visitConst(v, c);
+    Derived::visitOptions(self, v);
+  }
+  /// Options are written and compared, never read back (they come from the constructor).
+  template <typename V, typename T>
+  static void visitConst(V& v, T value) {
+    if constexpr (std::is_same<V, detail::ImageReader>::value) {
+      T ignored{};
+      v.field(ignored);
+    } else {
+      v.field(value);
+    }
   }
 
   void writeHeader(unsigned char* h, std::size_t payload) const {
@@ -461,10 +596,187 @@ class EstimatorBase {
   }
 
   template <typename XD>
-  void fold(const Eigen::MatrixBase<XD>& x, Scalar y, Scalar w) {
-    const auto step = m_centering.centeredRow(x, y, w, m_lambda, m_fit.intercept, m_row);
+  void fold(const Eigen::MatrixBase<XD>& x, Scalar y, Scalar w, Scalar lam) {
+    m_step = lam;
+    const auto step = m_centering.centeredRow(x, y, w, lam, m_fit.intercept, m_row);
     derived().foldRow(x, y, w, m_row, step.delta);
-    m_centering.commitStep(step, m_lambda, m_fit.intercept, m_row);
+    m_centering.commitStep(step, lam, m_fit.intercept, m_row);
+    m_step = m_lambda;
+  }
+
+  /// Fold without aging the state; the sample weighs w lambda^age (aged = lambda^age).
+  template <typename XD>
+  void foldAged(const Eigen::MatrixBase<XD>& x, Scalar y, Scalar w, Scalar aged) {
+    m_step = Scalar(1);
+    m_centering.scaledRow(x, y, w * aged, Scalar(1), m_fit.intercept, m_row);
+    derived().foldRow(x, y, w * aged, m_row, Scalar(1));  // a scaled row: weight 1
+    m_centering.commit(x, y, w * aged, Scalar(1), m_fit.intercept, m_row, aged);
+    m_step = m_lambda;
+  }
+
+  Flags guardFlags() const {
+    Flags f;
+    if ((m_guard.lastFlags & static_cast<std::uint16_t>(Flag::low_excitation)) != 0) f.set(Flag::low_excitation);
+    if ((m_guard.lastFlags & static_cast<std::uint16_t>(Flag::windup_guarded)) != 0) f.set(Flag::windup_guarded);
+    return f;
+  }
+
+  void relaxState(Scalar f) {
+    derived().ageState(f);
+    m_centering.age(f);
+    m_guard.spread *= f;
+  }
+
+  /// The information floor: every regressor whose forgotten spread D_j fell below floor x its
+  /// peak gets a pseudo-row a [e_j, b_j] (a^2 = floor peak_j - D_j, b_j its current slope) that
+  /// tops D_j up to the floor. Forgetting goes on in the excited directions while a parked input
+  /// keeps a bounded share of information at its current estimate: regularized forgetting
+  /// toward the current model, restricted to starved directions (NUMERICS §2.2, §2.4).
+  /// Returns true if a row was folded.
+  bool supportFloor(Scalar floor) {
+    bool any = false;
+    for (Eigen::Index j = 0; j < m_k; ++j) {
+      const Scalar need = floor * m_guard.peak(j) - m_guard.spread(j);
+      if (!(need > Scalar(0))) continue;
+      if (!any && !derived().currentSlopes(m_work.v3)) return false;
+      if (!std::isfinite(m_work.v3(j))) continue;
+      any = true;
+      typename Dims::Vector1& pseudo = m_work.v2aug;
+      const Scalar a = std::sqrt(need);
+      pseudo.setZero();
+      pseudo(j) = a;
+      pseudo(m_k) = a * m_work.v3(j);
+      m_step = Scalar(1);
+      derived().foldRow(m_centering.xMean(), m_centering.yMean(), Scalar(1), pseudo, Scalar(1));  // a scaled row: weight 1
+      m_step = m_lambda;
+      m_guard.spread(j) += need;
+      ++m_counters.floorRows;
+    }
+    return any;
+  }
+
+  /// The guarded path of add (NUMERICS §2.4 and §10): prediction error and leverage of the
+  /// sample from the current state, outlier gate, Huber weight, the step forgetting factor,
+  /// the fold, then the spreads, the regularization pseudo-row, the robust scale and CUSUM.
+  /// `aged` < 1 (or a delayed sample, aged <= 1 with `delayed`): see addDelayed.
+  template <typename XD>
+  Status guardedFold(const Eigen::MatrixBase<XD>& x, Scalar y, Scalar w, Scalar aged = Scalar(-1)) {
+    const WindupOptions& g = m_fit.windup;
+    const OutlierOptions& o = m_fit.outliers;
+    const Scalar one(1);
+    const bool delayed = aged > Scalar(0);
+    const Scalar noiseWeight = w;  // the sample's own precision (aging does not change its noise)
+    if (delayed) w *= aged;
+    const Scalar c = m_centering.scaledRow(x, y, w, delayed ? one : m_lambda, m_fit.intercept, m_row);
+    Scalar h = 0, e = 0, q = 0;
+    const bool known = c > Scalar(0) && derived().priorInfo(m_row, h, e) && std::isfinite(h) && std::isfinite(e);
+    Scalar hx = 0;
+    if (known) {
+      hx = h / (c * c);  // d' M^-1 d of the unscaled centered regressors
+      Scalar spread = one / noiseWeight + hx;
+      if (m_fit.intercept == Intercept::fit) spread += one / m_centering.weightSum();
+      q = (e / c) * (e / c) / spread;  // squared prediction error over its variance factor
+    }
+    const bool ready = known && m_guard.scaleReady(o.warmup);
+    const Scalar c2 = static_cast<Scalar>(o.threshold * o.threshold);
+    if (o.enabled && ready) {
+      const bool leverage = o.leverageLimit > 0.0 && hx > static_cast<Scalar>(o.leverageLimit);
+      if (leverage || q > c2 * m_guard.scale2) {
+        if (++m_counters.consecutiveRejections <= static_cast<std::uint64_t>(o.lockoutLimit)) {
+          ++(leverage ? m_counters.rejectedLeverage : m_counters.rejectedInnovation);
+          return Status::outlier;
+        }
+        // A run of rejections longer than the limit: take it as a real change (no lock-out).
+        ++m_counters.lockoutReleases;
+        m_counters.consecutiveRejections = 0;
+        relaxState(static_cast<Scalar>(o.lockoutRelax));
+        m_guard.scale2 = q;
+        m_guard.lastFlags = 0;
+        if (delayed) {
+          foldAged(x, y, w / aged, aged);
+          m_guard.foldSpread(one, m_row.head(m_k));
+        } else {
+          fold(x, y, w, m_lambda);
+          m_guard.foldSpread(m_lambda, m_row.head(m_k));
+        }
+        return Status::ok;
+      }
+    }
+    m_counters.consecutiveRejections = 0;
+    Scalar weight = w;
+    if (o.enabled && o.huber && ready && q > Scalar(0)) {
+      const Scalar z = std::sqrt(q / m_guard.scale2), limit = static_cast<Scalar>(o.huberThreshold);
+      if (z > limit) {
+        weight = w * (limit / z);
+        ++m_counters.downweighted;
+      }
+    }
+    if (delayed) {  // no step passes: no forgetting to guard, no regularization pseudo-row
+      foldAged(x, y, weight / aged, aged);
+      m_guard.foldSpread(one, m_row.head(m_k));
+      if (known) m_guard.foldScale(q, o.warmup, static_cast<Scalar>(o.scaleMemory), c2);
+      return Status::ok;
+    }
+    // Step forgetting factor.
+    Scalar lam = m_lambda;
+    std::uint16_t held = 0;
+    if (m_lambda < one && g.enabled) {
+      if (g.variableForgetting && ready) {
+        const Scalar n0 = one / (one - m_lambda);
+        lam = one - (one - h / (one + h)) * q / (m_guard.scale2 * n0);
+        const Scalar lo = static_cast<Scalar>(g.minForgetting);
+        lam = lam < lo ? lo : (lam > one ? one : lam);
+      }
+      if (g.informationGate > 0.0 && known && h < static_cast<Scalar>(g.informationGate) * (one - m_lambda)) {
+        lam = one;
+        held = static_cast<std::uint16_t>(Flag::low_excitation);
+        ++m_counters.heldForgetting;
+      }
+    }
+    if (held != 0) {
+      // Hold the slope information only: the means, W, F and the residual sum are forgotten as
+      // usual (the level keeps tracking; every sample excites the intercept direction), while
+      // the centered cross-products are folded without aging.
+      m_centering.scaledRow(x, y, weight, m_lambda, m_fit.intercept, m_row);
+      derived().ageResidual(m_lambda);
+      m_step = one;
+      derived().foldRow(x, y, weight, m_row, Scalar(1));  // a scaled row: weight 1
+      m_step = m_lambda;
+      m_centering.commit(x, y, weight, m_lambda, m_fit.intercept, m_row);
+    } else {
+      fold(x, y, weight, lam);
+    }
+    m_guard.foldSpread(lam, m_row.head(m_k));
+    if (lam < one && g.enabled && g.spreadFloor > 0.0 && known && supportFloor(static_cast<Scalar>(g.spreadFloor)))
+      held = static_cast<std::uint16_t>(held | static_cast<std::uint16_t>(Flag::windup_guarded));
+    m_guard.lastFlags = held;
+    if (g.regularization > 0.0 && lam < one) {
+      // One pseudo-row a [e_i, theta0_i], a^2 = K (1 - lam) delta, cycling over the inputs: on
+      // average (1 - lam) delta I is added to the information (and theta0 to its right side).
+      typename Dims::Vector1& pseudo = m_work.v2aug;
+      const Eigen::Index i = static_cast<Eigen::Index>(m_guard.cycle % static_cast<std::uint32_t>(m_k));
+      const Scalar a = std::sqrt(Scalar(m_k) * (one - lam) * static_cast<Scalar>(g.regularization));
+      pseudo.setZero();
+      pseudo(i) = a;
+      pseudo(m_k) = a * m_guard.nominal(i);
+      m_step = one;
+      derived().foldRow(m_centering.xMean(), m_centering.yMean(), one, pseudo, Scalar(1));  // a scaled row: weight 1
+      m_step = m_lambda;
+      m_guard.cycle = (m_guard.cycle + 1) % static_cast<std::uint32_t>(m_k);
+    }
+    if (known) {
+      if (g.enabled && g.changeThreshold > 0.0 && ready) {
+        m_guard.cusum += q / m_guard.scale2 - one - static_cast<Scalar>(g.changeDrift);
+        if (m_guard.cusum < Scalar(0)) m_guard.cusum = Scalar(0);
+        if (m_guard.cusum > static_cast<Scalar>(g.changeThreshold)) {
+          m_guard.cusum = Scalar(0);
+          ++m_counters.changeAlarms;
+          relaxState(static_cast<Scalar>(g.changeRelax));
+        }
+      }
+      m_guard.foldScale(q, o.warmup, static_cast<Scalar>(o.scaleMemory), c2);
+    }
+    return Status::ok;
   }
 
  protected:
@@ -474,7 +786,7 @@ class EstimatorBase {
   void foldRows(const Eigen::MatrixBase<XD>& X, const Eigen::MatrixBase<YD>& y, const WD* w) {
     for (Eigen::Index i = 0; i < X.rows(); ++i) {
       const Scalar wi = w != nullptr ? Scalar((*w)(i)) : Scalar(1);
-      if (wi != Scalar(0)) fold(X.row(i).transpose(), Scalar(y(i)), wi);
+      if (wi != Scalar(0)) fold(X.row(i).transpose(), Scalar(y(i)), wi, m_lambda);
     }
   }
   Centering<Scalar, K, MaxK>& mutableCentering() { return m_centering; }
@@ -499,15 +811,27 @@ class EstimatorBase {
       }
     }
     if (derived().room() < static_cast<std::uint64_t>(n)) return Status::capacity_full;
-    derived().foldRows(X, y, w);
+    if (!m_guarded) {
+      derived().foldRows(X, y, w);  // blocked where the estimator has a blocked path
+      return Status::ok;
+    }
+    for (Eigen::Index i = 0; i < n; ++i) {
+      const Scalar wi = w != nullptr ? Scalar((*w)(i)) : Scalar(1);
+      if (wi == Scalar(0)) continue;
+      guardedFold(X.row(i).transpose(), Scalar(y(i)), wi);  // a gated row is skipped and counted
+    }
     return Status::ok;
   }
 
   FitOptions m_fit;
   Eigen::Index m_k;
   Scalar m_lambda;
+  Scalar m_step;
   Status m_status = Status::ok;
+  bool m_guarded = false;
   Centering<Scalar, K, MaxK> m_centering;
+  GuardStateType m_guard;
+  GuardCounters m_counters;
   mutable WorkspaceType m_work;
   Vector1 m_row;
   mutable SolutionType m_solution;

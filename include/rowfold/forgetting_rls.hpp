@@ -67,6 +67,8 @@ class ForgettingRls : public EstimatorBase<ForgettingRls<Scalar_, K_, MaxK_>, Sc
   using Options = ForgettingRlsOptions;
   static constexpr detail::ErrorModel errorModel = detail::ErrorModel::online_gram;
   static constexpr EstimatorKind kind = EstimatorKind::forgetting_rls;
+  static constexpr bool guardable = true;
+  static constexpr bool positionalAges = false;  // ages live in the state: addDelayed/advance are exact
 
   explicit ForgettingRls(const Options& options = Options()) : ForgettingRls(K_ == Eigen::Dynamic ? 0 : K_, options) {}
   ForgettingRls(Eigen::Index k, const Options& options)
@@ -75,7 +77,8 @@ class ForgettingRls : public EstimatorBase<ForgettingRls<Scalar_, K_, MaxK_>, Sc
         m_P(k, k),
         m_theta(k),
         m_gain(k),
-        m_invLambda(Scalar(1) / static_cast<Scalar>(options.forgetting)) {
+        m_lambdaOption(static_cast<Scalar>(options.forgetting)),
+        m_invLambda(Scalar(1) / m_lambdaOption) {
     if (this->status() == Status::ok && options.start == RlsStart::prior &&
         !(options.priorPrecision > 0.0 && std::isfinite(options.priorPrecision)))
       m_badOptions = true;
@@ -186,7 +189,8 @@ class ForgettingRls : public EstimatorBase<ForgettingRls<Scalar_, K_, MaxK_>, Sc
         positive = positive && pj[j] > Scalar(0);
       }
     } else {
-      const Scalar il = m_invLambda, s = kappa * m_invLambda;
+      // 1/lambda: precomputed for the configured factor; a guard's step factor divides here.
+      const Scalar il = lambda == m_lambdaOption ? m_invLambda : Scalar(1) / lambda, s = kappa * il;
       for (Eigen::Index j = 0; j < k; ++j) {
         Scalar* __restrict pj = P + j * k;
         const Scalar gj = g[j];
@@ -196,6 +200,37 @@ class ForgettingRls : public EstimatorBase<ForgettingRls<Scalar_, K_, MaxK_>, Sc
     }
     m_sse = lambda * (m_sse + kappa * e * e);
     if (!positive) m_lost = true;
+  }
+
+  void ageState(Scalar f) {
+    if (m_recursive) {
+      m_P /= f;  // both triangles (kept symmetric)
+      m_sse *= f;
+    } else {
+      m_P.template triangularView<Eigen::Lower>() *= f;
+      m_theta *= f;
+    }
+  }
+
+  /// Forgets the residual sum only (P and theta kept).
+  void ageResidual(Scalar f) { m_sse *= f; }
+
+  template <typename VD>
+  bool currentSlopes(VD& b) const {
+    if (!m_recursive) return false;
+    b = m_theta;
+    return true;
+  }
+
+  /// h = phi'P phi and e = eta - phi'theta (O(K^2)); unknown before the exact start.
+  bool priorInfo(const Vector1& row, Scalar& h, Scalar& e) const {
+    if (!m_recursive) return false;
+    const Eigen::Index k = this->regressors();
+    auto& g = this->work().v1;
+    g.noalias() = m_P.template selfadjointView<Eigen::Lower>() * row.head(k);
+    h = row.head(k).dot(g);
+    e = row(k) - row.head(k).dot(m_theta);
+    return true;
   }
 
   /// Merging works on the augmented factors [R z; 0 rho] of both states (R'R = P^-1 after
@@ -324,7 +359,8 @@ class ForgettingRls : public EstimatorBase<ForgettingRls<Scalar_, K_, MaxK_>, Sc
   Matrix m_P;
   Vector m_theta;
   Vector m_gain;
-  Scalar m_invLambda;  // 1/lambda
+  Scalar m_lambdaOption;  // lambda of the options
+  Scalar m_invLambda;     // 1/lambda
   Scalar m_sse = 0;
   bool m_recursive = false;
   bool m_lost = false;

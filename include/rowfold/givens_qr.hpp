@@ -72,6 +72,8 @@ class GivensQr : public EstimatorBase<GivensQr<Scalar_, K_, MaxK_>, Scalar_, K_,
   using Options = GivensQrOptions;
   static constexpr detail::ErrorModel errorModel = detail::ErrorModel::online_qr;
   static constexpr EstimatorKind kind = EstimatorKind::givens_qr;
+  static constexpr bool guardable = true;
+  static constexpr bool positionalAges = false;  // ages live in the state: addDelayed/advance are exact
 
   /// Fixed K.
   explicit GivensQr(const Options& options = Options()) : GivensQr(K_ == Eigen::Dynamic ? 0 : K_, options) {}
@@ -421,6 +423,40 @@ class GivensQr : public EstimatorBase<GivensQr<Scalar_, K_, MaxK_>, Scalar_, K_,
   }
 
   Status canMerge(const GivensQr&) const { return Status::ok; }
+
+  void ageState(Scalar f) { ageDiagonal(0, f); }
+  /// Forgets the residual only (rho^2 = d_K, the last diagonal entry), keeping R and z.
+  void ageResidual(Scalar f) {
+    const Eigen::Index k = m_state.rows() - 1;
+    m_state(k, k) *= f;
+  }
+
+  /// Current slopes by back substitution on the explicit factor (K^2); false if it is singular.
+  template <typename VD>
+  bool currentSlopes(VD& b) const {
+    const Eigen::Index k = this->regressors();
+    formFactor();
+    for (Eigen::Index i = 0; i < k; ++i)
+      if (!(m_factor(i, i) > Scalar(0))) return false;
+    b = m_factor.col(k).head(k);
+    detail::backSubstitute(m_factor.topLeftCorner(k, k), b, k);
+    return b.allFinite();
+  }
+
+  /// h = phi' M^-1 phi = |R^-T phi|^2 and the prediction error e = eta - phi'b = eta - u'z
+  /// (u = R^-T phi): one forward substitution on the explicit factor (formed, K^2).
+  bool priorInfo(const Vector1& row, Scalar& h, Scalar& e) const {
+    const Eigen::Index k = this->regressors();
+    formFactor();
+    for (Eigen::Index i = 0; i < k; ++i)
+      if (!(m_factor(i, i) > Scalar(0))) return false;
+    auto& u = this->work().v1;
+    u = row.head(k);
+    detail::forwardSubstituteTransposed(m_factor.topLeftCorner(k, k), u);
+    h = u.squaredNorm();
+    e = row(k) - u.dot(m_factor.col(k).head(k));
+    return true;
+  }
 
   /// Stacked-factor merge (the TSQR step, NUMERICS §5), in square-root-free form: this state is
   /// aged by `age` (D only), then the rows of the other factor, D_o^(1/2) Rbar_o, are folded as

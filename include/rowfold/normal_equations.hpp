@@ -47,6 +47,9 @@ class NormalEquations : public EstimatorBase<NormalEquations<Scalar_, K_, MaxK_>
   using Options = NormalEquationsOptions;
   static constexpr detail::ErrorModel errorModel = detail::ErrorModel::online_gram;
   static constexpr EstimatorKind kind = EstimatorKind::normal_equations;
+  static constexpr bool guardable = true;
+  static constexpr bool positionalAges = false;  // ages live in the state: addDelayed/advance are exact
+
   explicit NormalEquations(const Options& options = Options())
       : NormalEquations(K_ == Eigen::Dynamic ? 0 : K_, options) {}
   NormalEquations(Eigen::Index k, const Options& options)
@@ -133,6 +136,52 @@ class NormalEquations : public EstimatorBase<NormalEquations<Scalar_, K_, MaxK_>
 
   Status canMerge(const NormalEquations&) const { return Status::ok; }
 
+  void ageState(Scalar f) { m_gram.template triangularView<Eigen::Lower>() *= f; }
+  /// Forgets the residual part of Syy only: Syy - (1 - f) SSE, with SSE = rho^2 from the
+  /// factorization priorInfo has just made (it always runs first on the guarded path).
+  void ageResidual(Scalar f) {
+    const Eigen::Index k = this->regressors();
+    m_gram(k, k) -= (Scalar(1) - f) * m_lastSse;
+  }
+
+  /// The augmented factor [R z; 0 rho] of the co-moments into the workspace's `aug`
+  /// (Cholesky, O(K^3/6)); false unless R has a positive diagonal.
+  bool augmentedFactor() const {
+    const Eigen::Index k = this->regressors();
+    WorkspaceType& ws = this->work();
+    const Scalar tol = Scalar(4) * Scalar(k + 1) * std::numeric_limits<Scalar>::epsilon();
+    if (detail::semidefiniteCholesky(m_gram, ws.aug, tol, true) != 0) return false;
+    for (Eigen::Index i = 0; i < k; ++i)
+      if (!(ws.aug(i, i) > Scalar(0))) return false;
+    return true;
+  }
+
+  /// Current slopes from the augmented factor (O(K^3/6)).
+  template <typename VD>
+  bool currentSlopes(VD& b) const {
+    const Eigen::Index k = this->regressors();
+    if (!augmentedFactor()) return false;
+    const auto& aug = this->work().aug;
+    b = aug.col(k).head(k);
+    detail::backSubstitute(aug.topLeftCorner(k, k), b, k);
+    return b.allFinite();
+  }
+
+  /// h = phi' M^-1 phi and e = eta - phi'b from the augmented factor: O(K^3/6) per sample, so
+  /// the guards make NormalEquations cost like a batch solve per sample (use GivensQr when they
+  /// are needed at large K).
+  bool priorInfo(const Vector1& row, Scalar& h, Scalar& e) const {
+    const Eigen::Index k = this->regressors();
+    if (!augmentedFactor()) return false;
+    WorkspaceType& ws = this->work();
+    ws.v1 = row.head(k);
+    detail::forwardSubstituteTransposed(ws.aug.topLeftCorner(k, k), ws.v1);
+    h = ws.v1.squaredNorm();
+    e = row(k) - ws.v1.dot(ws.aug.col(k).head(k));
+    m_lastSse = ws.aug(k, k) * ws.aug(k, k);
+    return true;
+  }
+
   /// Co-moments add (Chan, Golub & LeVeque 1979): G = age G_a + G_b + r r' (r = correction row).
   void mergeState(const NormalEquations& other, Scalar age, const Vector1& correction) {
     auto lower = m_gram.template triangularView<Eigen::Lower>();
@@ -158,6 +207,7 @@ class NormalEquations : public EstimatorBase<NormalEquations<Scalar_, K_, MaxK_>
   typename Dims::Matrix1 m_gram;
   detail::RowBlock<Scalar, K_, MaxK_> m_block;  // addRows scratch
   Vector1 m_u;                                  // add: the scaled centered row
+  mutable Scalar m_lastSse = 0;                 // scratch of the guarded path, not state
 };
 
 }  // namespace rowfold

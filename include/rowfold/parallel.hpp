@@ -59,7 +59,8 @@ Status addRowsParallelImpl(Estimator& est, const Eigen::MatrixBase<XD>& X, const
 
 /// `est.addRows(X, y)` on up to `threads` threads: contiguous row blocks are folded into copies
 /// of the estimator in parallel and merged in order (see EstimatorBase::merge), which gives the
-/// same fit as sequential folding up to rounding, forgetting included. All-or-nothing like
+/// same fit as sequential folding up to rounding, forgetting included (with lambda < 1 only when
+/// the windup guard is off: its held steps depend on the state each row meets). All-or-nothing like
 /// addRows: on any reject (the first failing block's Status) `est` is unchanged.
 /// Allocates one estimator copy per thread; small batches (< 8192 rows) are folded directly.
 template <typename Estimator, typename XD, typename YD>

@@ -87,6 +87,19 @@ struct Summary {
   }
 };
 
+/// What the windup guard and the outlier gate did since construction or reset() (diagnostics;
+/// not part of a snapshot, and the only thing a gated sample changes).
+struct GuardCounters {
+  std::uint64_t heldForgetting = 0;      ///< samples whose information was folded without forgetting (gate)
+  std::uint64_t floorRows = 0;           ///< pseudo-rows folded to keep a parked input at the information floor
+  std::uint64_t rejectedInnovation = 0;  ///< refused: prediction error beyond the gate
+  std::uint64_t rejectedLeverage = 0;    ///< refused: regressor leverage beyond the limit
+  std::uint64_t lockoutReleases = 0;     ///< outliers accepted as a real change after a run of rejections
+  std::uint64_t downweighted = 0;        ///< accepted with a reduced (Huber) weight
+  std::uint64_t changeAlarms = 0;        ///< CUSUM alarms (each relaxed the information)
+  std::uint64_t consecutiveRejections = 0;  ///< current run of refused samples
+};
+
 /// A prediction at a new x with its confidence interval (mean response) and prediction
 /// interval (a new unit-weight observation).
 template <typename Scalar>

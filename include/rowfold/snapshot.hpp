@@ -19,7 +19,8 @@
 ///   20      4    payload length in bytes
 ///   24      8    forgetting factor (IEEE double)
 ///   32      8    VIF limit (IEEE double)
-///   40      P    payload: centering state, then the estimator's own state
+///   40      P    payload: options (guard, then the estimator's), centering state, guard state,
+///                then the estimator's own state
 ///   40+P    4    CRC-32 (IEEE 802.3, reflected polynomial 0xEDB88320) of bytes [0, 40+P)
 /// ```
 /// Scalars are stored as their raw bytes, so a restored estimator continues bit-identically.
@@ -36,8 +37,9 @@ namespace rowfold {
 /// Which estimator wrote an image.
 enum class EstimatorKind : std::uint8_t { batch_qr = 1, givens_qr = 2, normal_equations = 3, forgetting_rls = 4 };
 
-/// 2: GivensQr keeps the square-root-free factor (d, Rbar) instead of [R z; 0 rho].
-constexpr std::uint16_t kSnapshotVersion = 2;
+/// 2: guard options and state in the payload; 3: GivensQr keeps the square-root-free factor
+/// (d, Rbar and a power-of-4 scale) instead of [R z; 0 rho].
+constexpr std::uint16_t kSnapshotVersion = 3;
 
 namespace detail {
 

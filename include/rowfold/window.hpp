@@ -16,6 +16,9 @@
 #include <vector>
 
 #include "rowfold/estimator_base.hpp"
+#include "rowfold/forgetting_rls.hpp"
+#include "rowfold/givens_qr.hpp"
+#include "rowfold/normal_equations.hpp"
 #include "rowfold/snapshot.hpp"
 #include "rowfold/status.hpp"
 
@@ -50,7 +53,8 @@ namespace rowfold {
 /// GivensQr and ForgettingRls, O(K^2) for NormalEquations). A query (solve, summarize,
 /// conditioning, predict, predictionInterval, weightSum, effectiveCount) after new rows merges
 /// the filling block into a copy of the merged complete blocks (one merge), then costs what the
-/// estimator's query costs. Memory: B + 3 estimator states.
+/// estimator's query costs. Memory: B + 4 estimator states (B + 1 blocks,
+/// the merged complete blocks, the window, a restore probe).
 ///
 /// **Allocation:** fixed K and fixed Blocks allocate nothing, ever (the states live inside the
 /// object); Eigen::Dynamic K or Blocks allocate in the constructor only. No exceptions.
@@ -71,6 +75,8 @@ namespace rowfold {
 /// window continues bit-identically.
 ///
 /// Threads: queries use scratch states inside the object (one query at a time).
+///
+/// Includes the three estimator headers, so `#include <rowfold/window.hpp>` is enough to use it.
 template <typename Estimator, int Blocks = Eigen::Dynamic>
 class BlockWindow {
   static_assert(Estimator::kind != EstimatorKind::batch_qr,
@@ -87,7 +93,8 @@ class BlockWindow {
   using Vector = typename Estimator::Vector;
   static constexpr int K = Estimator::K;
   static constexpr int Slots = Blocks == Eigen::Dynamic ? Eigen::Dynamic : Blocks + 1;
-  using Storage = std::conditional_t<Blocks == Eigen::Dynamic, std::vector<Estimator>, std::array<Estimator, (Slots > 0 ? Slots : 1)>>;
+  using Storage = std::conditional_t<Blocks == Eigen::Dynamic, std::vector<Estimator>,
+                                     std::array<Estimator, (Slots > 0 ? Slots : 1)>>;
 
   /// Fixed K and fixed Blocks: the window of Blocks blocks of `blockRows` rows.
   explicit BlockWindow(Eigen::Index blockRows, const Options& options = Options())
@@ -95,14 +102,18 @@ class BlockWindow {
 
   /// Any K and Blocks (each must equal the compile-time value when that is fixed).
   BlockWindow(Eigen::Index k, Eigen::Index blocks, Eigen::Index blockRows, const Options& options)
-      : m_merged(k, options), m_scratch(k, options), m_probe(k, options), m_blocks(makeStorage(blocks)),
-        m_blockRows(blockRows), m_count(blocks) {
+      : m_merged(k, options),
+        m_scratch(k, options),
+        m_probe(k, options),
+        m_blocks(makeStorage(blocks)),
+        m_blockRows(blockRows),
+        m_count(blocks) {
     for (Estimator& b : m_blocks) b = m_merged;
     m_status = m_merged.status();
     if (m_status == Status::ok && (blocks < 1 || blockRows < 1)) m_status = Status::invalid_options;
     if (m_status == Status::ok && Blocks != Eigen::Dynamic && blocks != Blocks) m_status = Status::wrong_size;
     if constexpr (Estimator::kind == EstimatorKind::forgetting_rls)
-      if (m_status == Status::ok && options.start != decltype(options.start)::exact) m_status = Status::invalid_options;
+      if (m_status == Status::ok && options.start != RlsStart::exact) m_status = Status::invalid_options;
   }
 
   /// Construction outcome; anything but `ok` makes add refuse.
@@ -303,7 +314,8 @@ class BlockWindow {
       }
       if (at != length - 4) return Status::corrupt_image;
     }
-    for (Eigen::Index i = static_cast<Eigen::Index>(live) + 1; i < slots(); ++i) m_blocks[static_cast<std::size_t>(i)].reset();
+    for (Eigen::Index i = static_cast<Eigen::Index>(live) + 1; i < slots(); ++i)
+      m_blocks[static_cast<std::size_t>(i)].reset();
     m_live = static_cast<Eigen::Index>(live);
     m_current = m_live;
     rebuildComplete();
@@ -356,7 +368,8 @@ class BlockWindow {
       return;
     }
     m_merged = block(-m_live);
-    for (Eigen::Index i = m_live - 1; i >= 1 && m_mergeStatus == Status::ok; --i) m_mergeStatus = m_merged.merge(block(-i));
+    for (Eigen::Index i = m_live - 1; i >= 1 && m_mergeStatus == Status::ok; --i)
+      m_mergeStatus = m_merged.merge(block(-i));
   }
 
   /// m_scratch = m_merged + the filling block.
@@ -395,9 +408,9 @@ class BlockWindow {
   Estimator m_probe;            ///< restore: checks each block image before anything changes
   Storage m_blocks;
   Eigen::Index m_blockRows;
-  Eigen::Index m_count;         ///< B
-  Eigen::Index m_current = 0;   ///< slot of the filling block
-  Eigen::Index m_live = 0;      ///< complete blocks in the window (0..B)
+  Eigen::Index m_count;        ///< B
+  Eigen::Index m_current = 0;  ///< slot of the filling block
+  Eigen::Index m_live = 0;     ///< complete blocks in the window (0..B)
   Status m_status = Status::ok;
   Status m_mergeStatus = Status::ok;
   mutable Status m_buildStatus = Status::ok;

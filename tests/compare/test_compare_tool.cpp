@@ -270,6 +270,11 @@ TEST_CASE("compare tool: bad files name file, line and column, exit non-zero, le
   CHECK(r.err.find("cannot open absent.csv") != std::string::npos);
   const Run usage = runTool(d, "absent.csv -r y -i a,b --solver quickest");
   CHECK(usage.code != 0);
+  CHECK(usage.err.find("unknown solver") != std::string::npos);
+  const Run batchTrace = runTool(d, "absent.csv -r y -i a,b --solver BatchQr --trace t.csv");
+  CHECK(batchTrace.code != 0);
+  CHECK(batchTrace.err.find("need an online solver") != std::string::npos);
+  CHECK_FALSE(fs::exists(d / "t.csv"));
 }
 
 TEST_CASE("compare tool: --trace and --plot write trajectories and a well-formed SVG") {

@@ -1,11 +1,15 @@
 // libFuzzer target: arbitrary byte streams drive every estimator (float and double, fixed K = 3,
 // and a dynamic K): options, samples, weights and queries come from the input. Asserts: no crash
 // or undefined behaviour (run under ASan/UBSan), a refused sample leaves the state bit-identical,
-// and solve() never returns non-finite coefficients without a flag or status saying why.
+// and solve() never returns non-finite coefficients without a flag or status saying why. The
+// input also switches on the guards (outlier gate, Huber, regularization, variable forgetting,
+// change alarm) and drives merge, relax, advance and addDelayed; a sample the outlier gate
+// refuses must leave the snapshot image byte-identical (only the diagnostic counters change).
 #include <cstddef>
 #include <cstdint>
 #include <cstdlib>
 #include <cstring>
+#include <vector>
 
 #include "rowfold/rowfold.hpp"
 
@@ -29,6 +33,14 @@ void require(bool ok) {
 }
 
 template <typename Est>
+std::vector<unsigned char> image(const Est& est) {
+  std::vector<unsigned char> buf(est.snapshotSize());
+  std::size_t n = 0;
+  require(est.snapshot(buf.data(), buf.size(), n) == rowfold::Status::ok);
+  return buf;
+}
+
+template <typename Est>
 void exercise(Est& est, Input& in) {
   using Scalar = typename Est::Scalar;
   Eigen::Matrix<Scalar, 3, 1> x;
@@ -41,8 +53,19 @@ void exercise(Est& est, Input& in) {
     }
     unsigned char before[sizeof(Est)];
     std::memcpy(before, static_cast<const void*>(&est), sizeof(Est));
-    const rowfold::Status s = est.add(x, y, w);
-    if (s != rowfold::Status::ok) require(std::memcmp(before, static_cast<const void*>(&est), sizeof(Est)) == 0);
+    const std::vector<unsigned char> imageBefore = image(est);
+    const bool late = (op & 0x0E) == 0x0E;
+    const rowfold::Status s = late ? est.addDelayed(x, y, op >> 4, w) : est.add(x, y, w);
+    if (s == rowfold::Status::outlier)
+      require(image(est) == imageBefore);  // scratch and counters may change, the state may not
+    else if (s != rowfold::Status::ok)
+      require(std::memcmp(before, static_cast<const void*>(&est), sizeof(Est)) == 0);
+    if ((op & 0x0E) == 0x06) {
+      Est part = est;  // merge a copy of the current state into itself (ages double)
+      (void)est.merge(part);
+    }
+    if ((op & 0x0E) == 0x0A) (void)est.relax(static_cast<Scalar>(0.5));
+    if ((op & 0x0E) == 0x0C) (void)est.advance(op >> 4);
     if ((op & 0x30) == 0x30) {
       const auto sol = est.solve();
       if (sol.status == rowfold::Status::ok && !sol.flags.any()) require(sol.coefficients.allFinite());
@@ -63,6 +86,15 @@ void run(const std::uint8_t* data, std::size_t size) {
   typename E<Scalar, 3, 3>::Options o;
   o.forgetting = lambda;
   o.intercept = (cfg & 1) ? rowfold::Intercept::none : rowfold::Intercept::fit;
+  if constexpr (E<Scalar, 3, 3>::guardable) {
+    o.outliers.enabled = (cfg & 2) != 0;
+    o.outliers.warmup = 3;
+    o.outliers.lockoutLimit = 2;
+    o.outliers.huber = (cfg & 4) != 0;
+    o.windup.regularization = (cfg & 8) != 0 ? 1e-3 : 0.0;
+    o.windup.variableForgetting = (cfg & 16) != 0;
+    o.windup.changeThreshold = (cfg & 32) != 0 ? 3.0 : 0.0;
+  }
   E<Scalar, 3, 3> est(o);
   exercise(est, in);
 }

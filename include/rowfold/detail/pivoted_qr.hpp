@@ -85,10 +85,13 @@ Eigen::Index pivotedQrInPlace(Eigen::MatrixBase<DA>& A, Eigen::MatrixBase<DV>& r
 /// In-place back substitution U x = b for the leading `r` x `r` upper triangle of U.
 template <typename DU, typename DB>
 void backSubstitute(const Eigen::MatrixBase<DU>& U, Eigen::MatrixBase<DB>& b, Eigen::Index r) {
+  // coeff/coeffRef, not operator(): g++ 12.2 at -O2 without NDEBUG miscompiles this descending
+  // loop on fixed-size vectors when Eigen's index assertions are inlined (the vector comes back
+  // unchanged; reproduced without rowfold; -O3, NDEBUG, -O0 and clang are fine).
   for (Eigen::Index i = r - 1; i >= 0; --i) {
-    typename DU::Scalar s = b(i);
-    for (Eigen::Index c = i + 1; c < r; ++c) s -= U(i, c) * b(c);
-    b(i) = s / U(i, i);
+    typename DU::Scalar s = b.coeff(i);
+    for (Eigen::Index c = i + 1; c < r; ++c) s -= U.coeff(i, c) * b.coeff(c);
+    b.coeffRef(i) = s / U.coeff(i, i);
   }
 }
 
