@@ -5,21 +5,8 @@
 //    with EIGEN_STACK_ALLOCATION_LIMIT = 0 so Eigen's hidden stack temporaries count as heap
 //    (the method of Eigen's own test/nomalloc.cpp), and eigen_assert redirected to a counter;
 //  - a counting global operator new/delete (any C++ allocation).
-#define EIGEN_RUNTIME_NO_MALLOC
 #define EIGEN_STACK_ALLOCATION_LIMIT 0
-#include <atomic>
-#include <cstdlib>
-#include <new>
-
-namespace rowfold_test {
-inline std::atomic<long> eigenAssertHits{0};
-inline std::atomic<long> newCalls{0};
-inline std::atomic<bool> countNew{false};
-}  // namespace rowfold_test
-#define eigen_assert(x)                                                     \
-  do {                                                                      \
-    if (!(x)) rowfold_test::eigenAssertHits.fetch_add(1);                   \
-  } while (false)
+#include "support/alloc_fence.hpp"
 
 #include <doctest/doctest.h>
 
@@ -27,17 +14,6 @@ inline std::atomic<bool> countNew{false};
 
 #include "rowfold/rowfold.hpp"
 #include "support/doctest_rowfold.hpp"
-
-void* operator new(std::size_t n) {
-  if (rowfold_test::countNew.load()) rowfold_test::newCalls.fetch_add(1);
-  if (void* p = std::malloc(n ? n : 1)) return p;
-  std::abort();
-}
-void* operator new[](std::size_t n) { return operator new(n); }
-void operator delete(void* p) noexcept { std::free(p); }
-void operator delete[](void* p) noexcept { std::free(p); }
-void operator delete(void* p, std::size_t) noexcept { std::free(p); }
-void operator delete[](void* p, std::size_t) noexcept { std::free(p); }
 
 namespace {
 

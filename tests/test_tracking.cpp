@@ -95,13 +95,20 @@ WindupRun windupScenario(bool guard, bool parkBoth, long quiet) {
   return r;
 }
 
+// 1e6 quiet samples as the issue asks; cross builds under an emulator use 1e5 (tests/CMakeLists.txt).
+#ifndef ROWFOLD_TRACKING_QUIET
+#define ROWFOLD_TRACKING_QUIET 1000000
+#endif
+constexpr long kQuiet = ROWFOLD_TRACKING_QUIET;
+
 }  // namespace
 
 TEST_CASE_TEMPLATE("windup: 1e6 samples without excitation, then a step: bounded, finite, reconverged in 3 T0", E,
                    rowfold::GivensQr<float, 2>, rowfold::GivensQr<double, 2>, rowfold::NormalEquations<float, 2>,
                    rowfold::NormalEquations<double, 2>, rowfold::ForgettingRls<float, 2>,
                    rowfold::ForgettingRls<double, 2>) {
-  const WindupRun r = windupScenario<E>(true, true, 1000000);
+  const WindupRun r = windupScenario<E>(true, true, kQuiet);
+  MESSAGE("worst |b - theta| while quiet " << r.worstDuringQuiet << ", after 3 T0 of the step " << r.afterStep);
   CHECK(r.healthy);
   CHECK(r.worstDuringQuiet < 0.05);  // the estimate stays where the excited data put it
   CHECK(r.lowExcitationSeen);
@@ -112,7 +119,8 @@ TEST_CASE_TEMPLATE("windup: one input parked for 1e6 samples: the spread floor h
                    rowfold::GivensQr<float, 2>, rowfold::GivensQr<double, 2>, rowfold::NormalEquations<float, 2>,
                    rowfold::NormalEquations<double, 2>, rowfold::ForgettingRls<float, 2>,
                    rowfold::ForgettingRls<double, 2>) {
-  const WindupRun r = windupScenario<E>(true, false, 1000000);
+  const WindupRun r = windupScenario<E>(true, false, kQuiet);
+  MESSAGE("worst |b - theta| while parked " << r.worstDuringQuiet << ", after 3 T0 of the step " << r.afterStep);
   CHECK(r.healthy);
   CHECK(r.worstDuringQuiet < 0.05);
   CHECK(r.windupGuardedSeen);
@@ -143,7 +151,8 @@ GateData gateData(int n, std::uint64_t seed) {
   std::normal_distribution<double> n01(0, 1);
   GateData d;
   for (int i = 0; i < n; ++i) {
-    const V2<double> x(10 + n01(rng), 5 + 2 * n01(rng));
+    const double u1 = n01(rng), u2 = n01(rng);  // in sequence: argument order is unspecified
+    const V2<double> x(10 + u1, 5 + 2 * u2);
     const bool spike = i >= 500 && i % 100 == 0;
     d.x.push_back(x);
     d.y.push_back(1.0 + 0.8 * x(0) - 0.5 * x(1) + 0.1 * n01(rng) + (spike ? 3.0 : 0.0));
@@ -191,9 +200,11 @@ TEST_CASE_TEMPLATE("outlier gate: spikes are refused without touching the state;
   CHECK(rate > 0.0015);
   CHECK(rate < 0.0045);
   // The gated fit is the clean fit (less ~0.3 % of clean samples); the plain fit is biased.
-  const auto sg = gated.summarize(), sc = clean.summarize(), sp = plain.summarize();
+  const auto sg = gated.summarize(), sc = clean.summarize();
   CHECK(std::abs(sg.intercept - sc.intercept) < 0.5 * sc.interceptStandardError);
-  CHECK(std::abs(sp.intercept - sc.intercept) > 5 * sc.interceptStandardError);
+  // The spikes move the mean response by 395 x 3 / 40000 = 0.0296 (its SE is about 0.0005).
+  const V2<double> center = clean.centering().xMean();
+  CHECK(std::abs(plain.predict(center) - clean.predict(center) - 0.0296) < 0.003);
 }
 
 TEST_CASE_TEMPLATE("outlier gate: a real step is not locked out", E, rowfold::GivensQr<double, 2>,
@@ -208,7 +219,8 @@ TEST_CASE_TEMPLATE("outlier gate: a real step is not locked out", E, rowfold::Gi
   int refusedLate = 0;
   for (int i = 0; i < 3000; ++i) {
     if (i == 2000) offset = 6.0;  // the invented analyzer is recalibrated: +50 noise sd
-    const V2<double> x(10 + n01(rng), 5 + 2 * n01(rng));
+    const double u1 = n01(rng), u2 = n01(rng);  // in sequence: argument order is unspecified
+    const V2<double> x(10 + u1, 5 + 2 * u2);
     const Status s = est.add(x, offset + 0.8 * x(0) - 0.5 * x(1) + 0.1 * n01(rng));
     REQUIRE((s == Status::ok || s == Status::outlier));
     if (i >= 2900 && s == Status::outlier) ++refusedLate;
@@ -226,7 +238,8 @@ TEST_CASE("outlier gate: a bad input tag (large leverage, small error) is refuse
   std::mt19937_64 rng(3);
   std::normal_distribution<double> n01(0, 1);
   for (int i = 0; i < 2000; ++i) {
-    V2<double> x(10 + n01(rng), 5 + 2 * n01(rng));
+    const double u1 = n01(rng), u2 = n01(rng);
+    V2<double> x(10 + u1, 5 + 2 * u2);
     const bool tag = i % 250 == 249;
     if (tag) x(0) = 200;  // a stuck-high tag, y still consistent with the model
     const Status s = est.add(x, 1.0 + 0.8 * x(0) - 0.5 * x(1) + 0.1 * n01(rng));
@@ -289,7 +302,8 @@ TEST_CASE("variable forgetting and the change alarm re-converge faster after a s
     int settled = -1;
     for (int i = 0; i < 8000; ++i) {
       const double gain = i < 5000 ? 0.8 : 1.6;
-      const V2<double> x(n01(rng), n01(rng));
+      const double u1 = n01(rng), u2 = n01(rng);
+      const V2<double> x(u1, u2);
       REQUIRE(est.add(x, 1.0 + gain * x(0) - 0.5 * x(1) + 0.05 * n01(rng)) == Status::ok);
       if (i >= 5000 && settled < 0 && std::abs(est.solve().coefficients(0) - 1.6) < 0.08) settled = i - 5000;
     }

@@ -7,26 +7,7 @@
 //    tolerance from the condition estimate: two backward-stable solutions of the same problem
 //    differ by about u kappa_s (Higham 2002 ch. 19-20); cross-product forms by u kappa_s^2.
 // Data other than NIST's are invented here (an LCG), and labelled so.
-#if defined(__GNUC__) && !defined(__clang__)
-// g++ 12 -O3 for aarch64 reports the malloc-backed replacement operator new/delete below as
-// "mismatched" once std::vector is inlined into it (a false positive; see tests/CMakeLists.txt).
-#pragma GCC diagnostic ignored "-Wmismatched-new-delete"
-#endif
-#define EIGEN_RUNTIME_NO_MALLOC
-#include <atomic>
-#include <cstdlib>
-#include <new>
-
-namespace rowfold_test {
-inline std::atomic<long> eigenAssertHits{0};
-inline std::atomic<long> newCalls{0};
-inline std::atomic<bool> countNew{false};
-}  // namespace rowfold_test
-// Eigen's allocation fence reports through eigen_assert (counted here, as in test_no_heap).
-#define eigen_assert(x)                                   \
-  do {                                                    \
-    if (!(x)) rowfold_test::eigenAssertHits.fetch_add(1); \
-  } while (false)
+#include "support/alloc_fence.hpp"  // first: it sets Eigen's allocation fence up
 
 #include <doctest/doctest.h>
 
@@ -41,26 +22,6 @@ inline std::atomic<bool> countNew{false};
 #include "support/doctest_rowfold.hpp"
 #include "support/nist.hpp"
 
-void* operator new(std::size_t n) {
-  if (rowfold_test::countNew.load()) rowfold_test::newCalls.fetch_add(1);
-  if (void* p = std::malloc(n ? n : 1)) return p;
-  std::abort();
-}
-void* operator new[](std::size_t n) {
-  return operator new(n);
-}
-void operator delete(void* p) noexcept {
-  std::free(p);
-}
-void operator delete[](void* p) noexcept {
-  std::free(p);
-}
-void operator delete(void* p, std::size_t) noexcept {
-  std::free(p);
-}
-void operator delete[](void* p, std::size_t) noexcept {
-  std::free(p);
-}
 
 namespace {
 

@@ -28,6 +28,12 @@ const char* const kDescription =
     "Solvers: BatchQr (stores the rows; holds at most --capacity rows, the rest of the file is not\n"
     "seen by it and the report says so), GivensQr, NormalEquations, ForgettingRls, or all.\n"
     "\n"
+    "Windows: --window N fits only the most recent rows. GivensQr, NormalEquations, ForgettingRls\n"
+    "and the reference use rowfold::BlockWindow: B = --window-blocks blocks of b = ceil(N/B) rows,\n"
+    "W = B*b; they hold the last W + (rows mod b) rows. BatchQr becomes a ring of exactly the last W\n"
+    "rows (--capacity is then ignored), so it holds the same rows as the others only when the row\n"
+    "count is a multiple of b; otherwise its deviation is not reported.\n"
+    "\n"
     "Reference: GivensQr<long double> (backward stable; 64-bit significand on x86-64) is fed the same\n"
     "rows in the same pass, so memory stays constant. 'deviation' is the largest relative difference\n"
     "of a solver's coefficients (and intercept) from it. Where long double is the same as double,\n"
@@ -91,8 +97,13 @@ int parseCommandLine(int argc, char** argv, Settings& s) {
   app.add_option("--level", s.level, "confidence level of the intervals, in (0, 1)")
       ->check(CLI::Range(0.0, 1.0))
       ->capture_default_str();
-  app.add_option("--capacity", s.capacity, "most rows BatchQr stores (it keeps every row in memory)")
+  app.add_option("--capacity", s.capacity, "most rows BatchQr stores (it keeps every row: about 16 (K + 3) bytes each)")
       ->check(CLI::Range(std::int64_t(1), std::int64_t(1) << 40))
+      ->capture_default_str();
+  app.add_option("--window", s.window, "fit only the most recent rows, about this many (see Windows above)")
+      ->check(CLI::Range(std::int64_t(1), std::int64_t(1) << 40));
+  app.add_option("--window-blocks", s.windowBlocks, "blocks of the block window (more: closer to exactly W rows)")
+      ->check(CLI::Range(std::int64_t(1), std::int64_t(4096)))
       ->capture_default_str();
   app.add_option("--separator", separator, "field separator: one character, or 'tab'")->capture_default_str();
   app.add_option("--on-missing", onMissing, "skip: skip and count rows with a missing value; stop: error")

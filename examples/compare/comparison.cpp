@@ -27,8 +27,11 @@ void finishComparison(const std::vector<std::unique_ptr<Contender>>& contenders,
     o.refusal = c->refusal();
     o.nsPerSample = o.folded > 0 ? 1e9 * c->foldSeconds() / static_cast<double>(o.folded)
                                  : std::numeric_limits<double>::quiet_NaN();
-    // Comparable only when the solver saw the same rows as the reference and has a fit.
-    if (out.referenceOk && o.refused == 0 && o.status == rowfold::Status::ok) {
+    // Comparable only when the solver holds the same rows as the reference and has a fit. With a
+    // window, BatchQr's ring holds the last W = B b rows, the block windows W + (used mod b).
+    const bool sameRows = o.refused == 0 && (out.window == 0 || o.kind != SolverKind::batch_qr ||
+                                             out.rows.used % static_cast<std::uint64_t>(out.windowBlockRows) == 0);
+    if (out.referenceOk && sameRows && o.status == rowfold::Status::ok) {
       for (std::size_t t = 0; t < ref.size(); ++t) {
         const long double b = termValues(o.summary, out.intercept, t).estimate;
         const long double diff = std::fabs(b - ref[t]);

@@ -36,6 +36,7 @@ struct Comparison {
   std::vector<std::string> inputs;
   bool intercept = true;
   double forgetting = 1.0, level = 0.95;
+  std::int64_t window = 0, windowBlocks = 0, windowBlockRows = 0;  ///< --window (0: none), B, b
   RowCounts rows;
   bool referenceOk = false;
   int referenceBits = 0;

@@ -17,8 +17,8 @@ rowfold::FitOptions fitOptions(const Settings& s) {
 template <typename Estimator>
 class Timed final : public Contender {
  public:
-  Timed(SolverKind kind, Eigen::Index k, const typename Estimator::Options& options)
-      : Contender(kind), m_fit(k, options) {}
+  template <typename... Args>
+  explicit Timed(SolverKind kind, const Args&... args) : Contender(kind), m_fit(args...) {}
 
   void fold(const Block& b, Eigen::Index from, Eigen::Index to) override {
     if (m_refusal != rowfold::Status::ok) {
@@ -50,12 +50,28 @@ class Timed final : public Contender {
   Estimator m_fit;
 };
 
+/// The estimator itself, or a block window of it with --window.
 template <typename Estimator>
 std::unique_ptr<Contender> make(SolverKind kind, Eigen::Index k, typename Estimator::Options options,
                                 const Settings& s) {
   static_cast<rowfold::FitOptions&>(options) = fitOptions(s);
+  if (s.window > 0)
+    return std::make_unique<Timed<rowfold::BlockWindow<Estimator>>>(
+        kind, k, static_cast<Eigen::Index>(s.windowBlocks), static_cast<Eigen::Index>(windowBlockRows(s)), options);
   return std::make_unique<Timed<Estimator>>(kind, k, options);
 }
+
+template <typename Estimator>
+class ReferenceFit final : public Reference::Fit {
+ public:
+  template <typename... Args>
+  explicit ReferenceFit(const Args&... args) : m_fit(args...) {}
+  void add(const Reference::Vector& x, Reference::Scalar y, Reference::Scalar w) override { (void)m_fit.add(x, y, w); }
+  rowfold::Solution<Reference::Scalar, Eigen::Dynamic> solve() const override { return m_fit.solve(); }
+
+ private:
+  Estimator m_fit;
+};
 
 }  // namespace
 
@@ -64,8 +80,13 @@ std::unique_ptr<Contender> makeContender(SolverKind kind, Eigen::Index k, const 
   switch (kind) {
     case SolverKind::batch_qr: {
       rowfold::BatchQrOptions o;
+      static_cast<rowfold::FitOptions&>(o) = fitOptions(s);
       o.capacity = static_cast<Eigen::Index>(s.capacity);
-      return make<rowfold::BatchQr<double, D>>(kind, k, o, s);
+      if (s.window > 0) {  // a ring of exactly W = B b rows: the block windows' complete blocks
+        o.capacity = static_cast<Eigen::Index>(s.windowBlocks * windowBlockRows(s));
+        o.slide = true;
+      }
+      return std::make_unique<Timed<rowfold::BatchQr<double, D>>>(kind, k, o);
     }
     case SolverKind::givens_qr:
       return make<rowfold::GivensQr<double, D>>(kind, k, {}, s);
@@ -77,24 +98,28 @@ std::unique_ptr<Contender> makeContender(SolverKind kind, Eigen::Index k, const 
   return nullptr;
 }
 
-Reference::Reference(Eigen::Index k, const Settings& s)
-    : m_fit(k,
-            [&s] {
-              rowfold::GivensQrOptions o;
-              static_cast<rowfold::FitOptions&>(o) = fitOptions(s);
-              return o;
-            }()),
-      m_x(k) {}
+Reference::Reference(Eigen::Index k, const Settings& s) : m_x(k) {
+  using Plain = rowfold::GivensQr<Scalar, Eigen::Dynamic>;
+  rowfold::GivensQrOptions o;
+  static_cast<rowfold::FitOptions&>(o) = fitOptions(s);
+  if (s.window > 0)
+    m_fit = std::make_unique<ReferenceFit<rowfold::BlockWindow<Plain>>>(
+        k, static_cast<Eigen::Index>(s.windowBlocks), static_cast<Eigen::Index>(windowBlockRows(s)), o);
+  else
+    m_fit = std::make_unique<ReferenceFit<Plain>>(k, o);
+}
+
+Reference::~Reference() = default;
 
 void Reference::fold(const Block& b) {
   for (Eigen::Index i = 0; i < b.rows; ++i) {
     m_x = b.x.row(i).transpose().cast<Scalar>();
-    (void)m_fit.add(m_x, static_cast<Scalar>(b.y(i)), static_cast<Scalar>(b.w(i)));
+    m_fit->add(m_x, static_cast<Scalar>(b.y(i)), static_cast<Scalar>(b.w(i)));
   }
 }
 
 bool Reference::solve(Vector& coefficients, Scalar& intercept) const {
-  const auto sol = m_fit.solve();
+  const auto sol = m_fit->solve();
   coefficients = sol.coefficients;
   intercept = sol.intercept;
   return sol.status == rowfold::Status::ok;

@@ -1,6 +1,7 @@
 /// @file
 /// The solvers being compared, behind one small run-time interface (dynamic K), and the
-/// extended-precision reference fed with the same rows.
+/// extended-precision reference fed with the same rows. With --window every solver and the
+/// reference fit a sliding window (BatchQr a ring of rows, the others rowfold::BlockWindow).
 #pragma once
 
 #include <Eigen/Core>
@@ -61,14 +62,22 @@ class Reference {
   using Scalar = long double;
   using Vector = Eigen::Matrix<Scalar, Eigen::Dynamic, 1>;
   Reference(Eigen::Index k, const Settings& settings);
+  ~Reference();
   void fold(const Block& b);
   /// Coefficients and intercept of the reference fit; false when it has none.
   bool solve(Vector& coefficients, Scalar& intercept) const;
   /// Significand bits of long double on this machine.
   static int precisionBits();
 
+  /// The fit behind the reference: plain, or a block window (--window).
+  struct Fit {
+    virtual ~Fit() = default;
+    virtual void add(const Vector& x, Scalar y, Scalar w) = 0;
+    virtual rowfold::Solution<Scalar, Eigen::Dynamic> solve() const = 0;
+  };
+
  private:
-  rowfold::GivensQr<Scalar, Eigen::Dynamic> m_fit;
+  std::unique_ptr<Fit> m_fit;
   Vector m_x;
 };
 

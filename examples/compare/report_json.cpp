@@ -15,6 +15,7 @@ json solverJson(const Comparison& c, const SolverOutcome& o) {
   j["name"] = solverName(o.kind);
   j["status"] = rowfold::nameOf(o.status);
   j["rows_folded"] = o.folded;
+  j["rows_in_fit"] = s.count;
   j["rows_refused"] = o.refused;
   j["refusal"] = o.refused > 0 ? json(rowfold::nameOf(o.refusal)) : json(nullptr);
   j["ns_per_sample"] = o.nsPerSample;
@@ -66,6 +67,11 @@ void writeJson(std::ostream& out, const Comparison& c) {
   j["intercept"] = c.intercept;
   j["forgetting"] = c.forgetting;
   j["level"] = c.level;
+  j["window"] = c.window == 0 ? json(nullptr)
+                              : json({{"rows", c.window},
+                                      {"blocks", c.windowBlocks},
+                                      {"block_rows", c.windowBlockRows},
+                                      {"batch_rows", c.windowBlocks * c.windowBlockRows}});
   j["rows"] = {{"data_lines", c.rows.dataLines},
                {"used", c.rows.used},
                {"skipped_missing", c.rows.skipped},

@@ -2,6 +2,7 @@
 #include <algorithm>
 #include <cmath>
 #include <string>
+#include <vector>
 
 #include "flag_text.hpp"
 #include "report.hpp"
@@ -9,7 +10,7 @@
 namespace rowfold_compare {
 namespace {
 
-constexpr int kCell = 24;
+constexpr std::size_t kCell = 24;
 
 std::string fmt(const char* format, double v) {
   if (std::isnan(v)) return "-";
@@ -23,15 +24,21 @@ std::string label(const std::string& name, int width) {
   return name.substr(0, static_cast<std::size_t>(width - 5)) + "...";
 }
 
-/// One table line: a label and one cell per solver.
+/// A label, then the cells in columns of kCell characters; no trailing blanks.
+void printRow(std::FILE* out, int width, const std::string& name, const std::vector<std::string>& cells) {
+  std::string row = label(name, width);
+  row.resize(static_cast<std::size_t>(width), ' ');
+  for (const std::string& cell : cells) row += cell + std::string(cell.size() < kCell ? kCell - cell.size() : 1, ' ');
+  row.erase(row.find_last_not_of(' ') + 1);
+  std::fprintf(out, "%s\n", row.c_str());
+}
+
+/// One table line: a label and one cell per solver ("-" for a solver without a result).
 template <typename F>
 void line(std::FILE* out, const Comparison& c, int width, const std::string& name, F cellText) {
-  std::fprintf(out, "%-*s", width, label(name, width).c_str());
-  for (const SolverOutcome& o : c.solvers) {
-    const bool ok = o.status == rowfold::Status::ok;
-    std::fprintf(out, "%-*s", kCell, ok ? cellText(o).c_str() : "-");
-  }
-  std::fprintf(out, "\n");
+  std::vector<std::string> cells;
+  for (const SolverOutcome& o : c.solvers) cells.push_back(o.status == rowfold::Status::ok ? cellText(o) : "-");
+  printRow(out, width, name, cells);
 }
 
 void printWarnings(std::FILE* out, const Comparison& c) {
@@ -74,12 +81,20 @@ void printTable(std::FILE* out, const Comparison& c) {
                static_cast<unsigned long long>(c.rows.skipped));
   if (c.rows.skipped > 0)
     std::fprintf(out, " (first at line %llu)", static_cast<unsigned long long>(c.rows.firstSkippedLine));
-  std::fprintf(out, "\nreference: GivensQr<long double> on the same rows, %d-bit significand%s\n\n", c.referenceBits,
+  if (c.window > 0)
+    std::fprintf(out,
+                 "\nwindow: the most recent rows only; BatchQr the last %lld, the others a block window of %lld blocks "
+                 "of %lld rows (%lld to %lld rows)",
+                 static_cast<long long>(c.windowBlocks * c.windowBlockRows), static_cast<long long>(c.windowBlocks),
+                 static_cast<long long>(c.windowBlockRows), static_cast<long long>(c.windowBlocks * c.windowBlockRows),
+                 static_cast<long long>((c.windowBlocks + 1) * c.windowBlockRows - 1));
+  std::fprintf(out, "\nreference: GivensQr<long double>%s on the same rows, %d-bit significand%s\n\n",
+               c.window > 0 ? " in the same block window" : "", c.referenceBits,
                c.referenceOk ? "" : " (no reference fit)");
 
-  std::fprintf(out, "%-*s", width, "estimate (std. error)");
-  for (const SolverOutcome& o : c.solvers) std::fprintf(out, "%-*s", kCell, solverName(o.kind));
-  std::fprintf(out, "\n");
+  std::vector<std::string> names;
+  for (const SolverOutcome& o : c.solvers) names.emplace_back(solverName(o.kind));
+  printRow(out, width, "estimate (std. error)", names);
   for (std::size_t t = 0; t < terms.size(); ++t)
     line(out, c, width, terms[t], [&](const SolverOutcome& o) {
       const TermValues v = termValues(o.summary, c.intercept, t);
@@ -90,6 +105,7 @@ void printTable(std::FILE* out, const Comparison& c) {
        [](const SolverOutcome& o) { return fmt("%.6g", o.summary.residualStandardError); });
   line(out, c, width, "R^2", [](const SolverOutcome& o) { return fmt("%.6f", o.summary.rSquared); });
   line(out, c, width, "rows folded", [](const SolverOutcome& o) { return std::to_string(o.folded); });
+  line(out, c, width, "rows in the fit", [](const SolverOutcome& o) { return std::to_string(o.summary.count); });
   line(out, c, width, "ns/sample", [](const SolverOutcome& o) { return fmt("%.1f", o.nsPerSample); });
   line(out, c, width, "deviation from reference", [](const SolverOutcome& o) { return fmt("%.2e", o.maxDeviation); });
   std::fprintf(out, "\nestimated correct digits\n");
@@ -100,8 +116,9 @@ void printTable(std::FILE* out, const Comparison& c) {
   std::fprintf(out, "\nwarnings:\n");
   printWarnings(out, c);
   std::fprintf(out,
-               "\n(standard errors and R^2 at level %g; deviation = largest relative difference of a coefficient "
-               "from the reference; ns/sample: time in add() only, varies from run to run)\n",
+               "\nnotes: intervals at level %g. deviation = largest relative difference of a coefficient from the\n"
+               "reference. ns/sample = time in add() only (BatchQr only stores the row there; its QR runs at\n"
+               "solve time); it varies from run to run.\n",
                c.level);
 }
 

@@ -8,6 +8,7 @@
 #include <cstring>
 #include <fstream>
 #include <iostream>
+#include <new>
 #include <stdexcept>
 
 #include "csv_reader.hpp"
@@ -163,11 +164,21 @@ Comparison run(const Settings& s, const std::function<TraceRecorder*(const Compa
   out.intercept = s.intercept;
   out.forgetting = s.forgetting;
   out.level = s.level;
+  if (s.window > 0) {
+    out.window = s.window;
+    out.windowBlocks = s.windowBlocks;
+    out.windowBlockRows = windowBlockRows(s);
+  }
 
   const auto k = static_cast<Eigen::Index>(columns.inputs.size());
   std::vector<std::unique_ptr<Contender>> contenders;
   for (SolverKind kind : s.solvers) {
-    contenders.push_back(makeContender(kind, k, s));
+    try {
+      contenders.push_back(makeContender(kind, k, s));
+    } catch (const std::bad_alloc&) {
+      throw std::runtime_error(std::string("not enough memory for ") + solverName(kind) +
+                               " (BatchQr stores --capacity or --window rows; choose fewer)");
+    }
     if (contenders.back()->status() != rowfold::Status::ok)
       throw std::runtime_error(std::string(solverName(kind)) +
                                " refused its options: " + rowfold::nameOf(contenders.back()->status()));

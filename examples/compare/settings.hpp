@@ -35,6 +35,8 @@ struct Settings {
   double forgetting = 1.0;
   double level = 0.95;             ///< confidence level of the intervals
   std::int64_t capacity = 100000;  ///< rows BatchQr can hold
+  std::int64_t window = 0;         ///< 0: all rows; else fit only the most recent rows
+  std::int64_t windowBlocks = 8;   ///< B, blocks of the block window (GivensQr, ..., reference)
   char separator = ',';
   bool stopOnMissing = false;             ///< a missing value is an error instead of a skipped row
   std::vector<std::string> missingWords;  ///< extra tokens that mean "no value"
@@ -42,6 +44,11 @@ struct Settings {
   std::uint64_t every = 100;  ///< trace/plot point every this many used rows
   bool progress = true;
 };
+
+/// Rows per block of the block window, b = ceil(window / B); the window proper is W = B b rows.
+inline std::int64_t windowBlockRows(const Settings& s) {
+  return (s.window + s.windowBlocks - 1) / s.windowBlocks;
+}
 
 /// Parses the command line. Returns -1 when the tool should go on, otherwise the exit status
 /// (0 after --help, non-zero after a usage error, which is already printed).

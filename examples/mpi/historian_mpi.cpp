@@ -200,11 +200,13 @@ struct Fits {
   static Givens::Options givensOptions(double lambda) {
     Givens::Options o;
     o.forgetting = lambda;
+    o.windup.enabled = false;  // exact exponential weights: guard-held steps depend on the state a row meets
     return o;
   }
   static Normal::Options normalOptions(double lambda) {
     Normal::Options o;
     o.forgetting = lambda;
+    o.windup.enabled = false;  // exact exponential weights: guard-held steps depend on the state a row meets
     return o;
   }
 };
@@ -218,6 +220,7 @@ struct Reference {
   static GivensLong::Options options(double lambda) {
     GivensLong::Options o;
     o.forgetting = lambda;
+    o.windup.enabled = false;  // exact exponential weights: guard-held steps depend on the state a row meets
     return o;
   }
 };

@@ -447,6 +447,8 @@ class EstimatorBase {
   /// Forgetting factor of the sample being folded (the windup guard may hold it at 1); the
   /// nominal lambda outside a fold.
   Scalar lambda() const { return m_step; }
+  /// The running means and sums, writable (for estimators that remove samples).
+  Centering<Scalar, K, MaxK>& centeringState() { return m_centering; }
   Intercept interceptMode() const { return m_fit.intercept; }
   WorkspaceType& work() const { return m_work; }
 
@@ -484,6 +486,18 @@ class EstimatorBase {
   /// `not_available` instead of returning NaN.
   bool factorizeChecked() const {
     if (!derived().factorize(m_work)) return false;
+    if (m_work.rank < m_k && Derived::errorModel != detail::ErrorModel::refined_raw) {  // BatchQr sums raw residuals
+      // Rank deficient: the basic solution leaves z - R b in the dependent rows (a factor whose
+      // dependent diagonal is rounding-level carries part of y there), so that residual belongs
+      // to the SSE: rho^2 + |z - R b|^2 (plain loops: no heap).
+      Scalar extra = Scalar(0);
+      for (Eigen::Index i = 0; i < m_k; ++i) {
+        Scalar r = m_work.z(i);
+        for (Eigen::Index j = i; j < m_k; ++j) r -= m_work.R(i, j) * m_work.b(j);
+        extra += r * r;
+      }
+      m_work.rho = std::sqrt(m_work.rho * m_work.rho + extra);
+    }
     const bool finite = m_work.b.allFinite() && std::isfinite(m_work.intercept) && m_work.R.allFinite() &&
                         m_work.z.allFinite() && std::isfinite(m_work.rho);
     if (!finite) m_work.flags.set(Flag::near_singular);
@@ -789,7 +803,6 @@ class EstimatorBase {
       if (wi != Scalar(0)) fold(X.row(i).transpose(), Scalar(y(i)), wi, m_lambda);
     }
   }
-  Centering<Scalar, K, MaxK>& mutableCentering() { return m_centering; }
 
  private:
 

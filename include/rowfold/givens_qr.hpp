@@ -187,9 +187,7 @@ class GivensQr : public EstimatorBase<GivensQr<Scalar_, K_, MaxK_>, Scalar_, K_,
     }
     m_factor(k, k) = rest2 > zero ? sqrt(rest2) : zero;
     takeFactor();
-    // Base keeps the centering private and offers it read-only; the object itself is not const.
-    auto& mutableCentering = const_cast<Centering<Scalar, K_, MaxK_>&>(centering);
-    mutableCentering.remove(x, y, w, this->interceptMode(), u, aged);
+    this->centeringState().remove(x, y, w, this->interceptMode(), u, aged);
     return Status::ok;
   }
 
@@ -239,7 +237,7 @@ class GivensQr : public EstimatorBase<GivensQr<Scalar_, K_, MaxK_>, Scalar_, K_,
   void foldRows(const Eigen::MatrixBase<XD>& X, const Eigen::MatrixBase<YD>& y, const WD* w) {
     Eigen::Index i = 0;
     for (Eigen::Index nb; (nb = m_block.gather(X, y, w, i)) > 0;) {
-      const auto mg = m_block.prepare(nb, this->lambda(), this->interceptMode(), this->mutableCentering());
+      const auto mg = m_block.prepare(nb, this->lambda(), this->interceptMode(), this->centeringState());
       ageDiagonal(0, mg.ageing);
       const auto& z = m_block.rows();
       const auto& om = m_block.weights();

@@ -107,7 +107,7 @@ class NormalEquations : public EstimatorBase<NormalEquations<Scalar_, K_, MaxK_>
   /// G <- lambda^b G + c diff diff' + Z' diag(omega) Z for the block's centered rows Z.
   void foldBlock(Eigen::Index nb) {
     const Eigen::Index n = m_gram.cols();
-    const auto mg = m_block.prepare(nb, this->lambda(), this->interceptMode(), this->mutableCentering());
+    const auto mg = m_block.prepare(nb, this->lambda(), this->interceptMode(), this->centeringState());
     const auto& z = m_block.rows();
     const auto& diff = m_block.diff();
     Scalar* const g = m_gram.data();

@@ -77,7 +77,7 @@ std::string exactRows(int n, int firstIndex = 0) {
 }
 
 /// A fresh case directory `name` holding `file` with `text`; runs the tool there with `args`
-/// and requires success.
+/// and requires success with nothing on stderr.
 Run runOk(fs::path& dir, const std::string& name, const std::string& file, const std::string& text,
           const std::string& args) {
   dir = caseDir(name);
@@ -85,6 +85,7 @@ Run runOk(fs::path& dir, const std::string& name, const std::string& file, const
   Run r = runTool(dir, file + " " + args);
   INFO(r.err);
   REQUIRE(r.code == 0);
+  CHECK(r.err.empty());  // stderr is not a terminal here: no progress line, and no warnings
   return r;
 }
 
@@ -351,6 +352,38 @@ TEST_CASE("compare tool: weights, no intercept, separator and BatchQr capacity")
   CHECK(batch.at("refusal") == "capacity_full");
   CHECK(batch.at("max_relative_deviation").is_null());  // it saw fewer rows than the reference
   CHECK(r.out.find("BatchQr: Its row store was full (--capacity)") != std::string::npos);
+}
+
+TEST_CASE("compare tool: --window fits the most recent rows only") {
+  // Invented: the exact model changes at row 500, from y = 1 + 2 a + 0.5 b to y = 5 - a + 0.25 b.
+  std::string text = "a,b,y\n";
+  for (int i = 0; i < 1000; ++i) {
+    const int a = i % 7, b = (i * i) % 11;
+    text += std::to_string(a) + "," + std::to_string(b) + "," +
+            std::to_string(i < 500 ? 1.0 + 2.0 * a + 0.5 * b : 5.0 - a + 0.25 * b) + "\n";
+  }
+  fs::path d;
+  runOk(d, "window", "shift.csv", text, "-r y -i a,b --window 200 --window-blocks 4 --json w.json");
+  const json doc = json::parse(slurp(d / "w.json"));
+  CHECK(doc.at("window").at("block_rows") == 50);
+  const double truth[] = {5.0, -1.0, 0.25};  // the invented second regime
+  for (const std::string name : kSolvers) {
+    CAPTURE(name);
+    const json& s = solver(doc, name);
+    // 1000 rows = 20 blocks of 50: every window holds exactly the last 200 rows (window.hpp).
+    CHECK(s.at("rows_in_fit") == 200);
+    CHECK(s.at("max_relative_deviation").is_number());
+    for (std::size_t t = 0; t < 3; ++t)
+      CHECK(std::fabs(s.at("terms")[t].at("estimate").get<double>() - truth[t]) < 1e-9);
+  }
+  // N = 190, B = 4: b = 48, W = 192; 1000 = 20 * 48 + 40, so the block windows hold 232 rows and
+  // BatchQr's ring 192: BatchQr is not compared with the reference.
+  runOk(d, "window_uneven", "shift.csv", text, "-r y -i a,b --window 190 --window-blocks 4 --json u.json");
+  const json uneven = json::parse(slurp(d / "u.json"));
+  CHECK(solver(uneven, "BatchQr").at("rows_in_fit") == 192);
+  CHECK(solver(uneven, "BatchQr").at("max_relative_deviation").is_null());
+  CHECK(solver(uneven, "GivensQr").at("rows_in_fit") == 232);
+  CHECK(solver(uneven, "GivensQr").at("max_relative_deviation").is_number());
 }
 
 TEST_CASE("compare tool: NIST StRD Longley certified values from a CSV rendering") {
