@@ -9,6 +9,8 @@
 #include <doctest/doctest.h>
 
 #include <algorithm>
+#include <cmath>
+#include <limits>
 #include <numeric>
 #include <random>
 #include <type_traits>
@@ -165,4 +167,92 @@ TEST_CASE("regression (found by fuzz_estimators): overflowing cross-products are
   const auto g = gq.solve();
   CHECK(g.status == Status::ok);
   CHECK(g.coefficients.allFinite());
+}
+
+namespace {
+
+// Block ingestion (addRows, blocked in NormalEquations and GivensQr) against folding the same
+// rows one at a time with add. Both compute the same sums in exact arithmetic (pairwise merge of
+// block means and co-moments, Chan, Golub & LeVeque 1983, Am. Stat. 37(3):242-247); only the
+// order of the roundings differs. Recursive summation of n terms has error at most
+// n u sum|terms| (Higham 2002, Accuracy and Stability of Numerical Algorithms, §4.2), and by
+// Cauchy-Schwarz sum|u_i u_j| <= sqrt(G_ii G_jj) for a co-moment G_ij. The tolerance is 16 n u
+// times that (16: the centering, the weights lambda^age and the block means each add a few
+// roundings per term); the coefficients get 16 n u times the estimator's own condition
+// estimate (relative perturbation of a least-squares solution, Björck 1996 §1.4).
+template <class E>
+void blockEqualsRows(double lambda, bool weighted, std::uint64_t seed) {
+  std::mt19937_64 rng(seed);
+  const Eigen::Index k = 4, n = 203;  // several blocks and a partial one
+  const Problem p = randomProblem(rng, n, k);
+  Vec w = Vec::Ones(n);
+  if (weighted)
+    for (Eigen::Index i = 0; i < n; ++i) w(i) = i % 7 == 3 ? 0.0 : 0.5 + double(i % 5);  // zero weights too
+  typename E::Options o;
+  o.forgetting = lambda;
+  E rows(k, o), block(k, o);
+  for (Eigen::Index i = 0; i < n; ++i) REQUIRE(rows.add(Vec(p.X.row(i).transpose()), p.y(i), w(i)) == Status::ok);
+  REQUIRE((weighted ? block.addRows(p.X, p.y, w) : block.addRows(p.X, p.y)) == Status::ok);
+  const double tol = 16.0 * double(n) * std::numeric_limits<double>::epsilon();
+
+  CHECK(block.count() == rows.count());
+  CHECK(std::abs(block.weightSum() - rows.weightSum()) <= tol * rows.weightSum());
+  CHECK(std::abs(block.centering().forgetSum() - rows.centering().forgetSum()) <= tol * rows.centering().forgetSum());
+  CHECK(std::abs(block.centering().forgetSum2() - rows.centering().forgetSum2()) <= tol * rows.centering().forgetSum2());
+
+  // Co-moments [X~ y~]'W[X~ y~] from the factor (R'R, any estimator) or directly (NormalEquations).
+  Mat G(k + 1, k + 1), Gb(k + 1, k + 1), M(k, k), Mb(k, k);
+  Vec m(k), mb(k);
+  double syy = 0, syyb = 0;
+  REQUIRE(rows.crossProducts(M, m, syy) == Status::ok);
+  REQUIRE(block.crossProducts(Mb, mb, syyb) == Status::ok);
+  G.topLeftCorner(k, k) = M;
+  Gb.topLeftCorner(k, k) = Mb;
+  G.col(k).head(k) = m;
+  Gb.col(k).head(k) = mb;
+  G(k, k) = syy;
+  Gb(k, k) = syyb;
+  for (Eigen::Index j = 0; j <= k; ++j) {
+    const double spread = std::sqrt(G(j, j) / rows.weightSum());  // weighted standard deviation
+    const double mean = j < k ? rows.centering().xMean()(j) : rows.centering().yMean();
+    const double meanB = j < k ? block.centering().xMean()(j) : block.centering().yMean();
+    CHECK(std::abs(meanB - mean) <= tol * (std::abs(mean) + spread));
+    for (Eigen::Index i = j; i <= k; ++i) {
+      if (i == k && j < k) continue;  // m is compared through column k below
+      CHECK(std::abs(Gb(i, j) - G(i, j)) <= tol * std::sqrt(G(i, i) * G(j, j)));
+    }
+    if (j < k) CHECK(std::abs(Gb(j, k) - G(j, k)) <= tol * std::sqrt(G(j, j) * G(k, k)));
+  }
+  if constexpr (std::is_same<E, rowfold::NormalEquations<double, Eigen::Dynamic>>::value) {
+    const auto& A = rows.comoments();
+    const auto& B = block.comoments();
+    for (Eigen::Index j = 0; j <= k; ++j)
+      for (Eigen::Index i = j; i <= k; ++i) CHECK(std::abs(B(i, j) - A(i, j)) <= tol * std::sqrt(A(i, i) * A(j, j)));
+  }
+
+  const auto a = rows.solve(), b = block.solve();
+  const double kappa = rows.conditioning().scaledCondition;
+  const double scale = a.coefficients.cwiseAbs().maxCoeff() + std::abs(a.intercept);
+  CHECK((b.coefficients - a.coefficients).cwiseAbs().maxCoeff() <= tol * kappa * scale);
+  CHECK(std::abs(b.intercept - a.intercept) <= tol * kappa * scale);
+}
+
+template <template <typename, int, int> class E>
+void blockCases(std::uint64_t seed) {
+  using T = E<double, Eigen::Dynamic, Eigen::Dynamic>;
+  for (double lambda : {1.0, 0.97})
+    for (bool weighted : {false, true}) {
+      CAPTURE(lambda);
+      CAPTURE(weighted);
+      blockEqualsRows<T>(lambda, weighted, seed++);
+    }
+}
+
+}  // namespace
+
+TEST_CASE("addRows in blocks equals folding row by row (to rounding), with forgetting and weights") {
+  SUBCASE("NormalEquations") { blockCases<rowfold::NormalEquations>(21); }
+  SUBCASE("GivensQr") { blockCases<rowfold::GivensQr>(22); }
+  SUBCASE("ForgettingRls (row by row)") { blockCases<rowfold::ForgettingRls>(23); }
+  SUBCASE("BatchQr (stores rows)") { blockCases<Batch>(24); }
 }

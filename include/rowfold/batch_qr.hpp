@@ -187,7 +187,7 @@ class BatchQr : public EstimatorBase<BatchQr<Scalar_, K_, Capacity_, MaxK_>, Sca
   }
 
   template <typename XD>
-  void foldRow(const Eigen::MatrixBase<XD>& x, Scalar y, Scalar w, const Vector1&) {
+  void foldRow(const Eigen::MatrixBase<XD>& x, Scalar y, Scalar w, const Vector1&, Scalar) {
     push(x.transpose(), y, w);
   }
 

@@ -80,6 +80,81 @@ class Centering {
     return c;
   }
 
+  /// Weight of a centered row in the square-root-free forms: the row is d = [x - xbar, y - ybar]
+  /// (unscaled) and it enters the co-moments as delta d d' (delta = c^2 of `scaledRow`).
+  struct Step {
+    Scalar delta;  ///< c^2 = w lambda W / W' (w without intercept)
+    Scalar share;  ///< w / W' (mean update)
+    Scalar wNew;   ///< W'
+  };
+
+  /// Writes d = [x - xbar, y - ybar] (or [x, y] without intercept) into `row` and returns its
+  /// weight delta and the mean step, without changing the state. One division, no square root.
+  template <typename XD>
+  Step centeredRow(const Eigen::MatrixBase<XD>& x, Scalar y, Scalar w, Scalar lambda, Intercept mode,
+                   Vector1& row) const {
+    const Eigen::Index k = m_xbar.size();
+    const Scalar aged = lambda * m_weight;
+    const Scalar wNew = aged + w;
+    if (mode == Intercept::none) {
+      row.head(k) = x;
+      row(k) = y;
+      return Step{w, Scalar(0), wNew};
+    }
+    row.head(k) = x - m_xbar;
+    row(k) = y - m_ybar;
+    // Two independent divisions (not a reciprocal and products): one rounding each, which the
+    // cross-product forms notice on exact-fit data (NIST Wampler1).
+    return Step{w * (aged / wNew), w / wNew, wNew};
+  }
+
+  /// Commits a sample prepared by `centeredRow` (`row` still holds its d).
+  void commitStep(const Step& st, Scalar lambda, Intercept mode, const Vector1& row) {
+    const Eigen::Index k = m_xbar.size();
+    if (mode == Intercept::fit) {
+      m_xbar += st.share * row.head(k);
+      m_ybar += st.share * row(k);
+    }
+    m_syy = lambda * m_syy + st.delta * row(k) * row(k);
+    m_weight = st.wNew;
+    m_forget = lambda * m_forget + Scalar(1);
+    m_forget2 = lambda * lambda * m_forget2 + Scalar(1);
+    ++m_count;
+  }
+
+  /// Folds a block of samples summarized by their own weighted statistics into the running ones
+  /// (pairwise update of Chan, Golub & LeVeque 1983, Am. Stat. 37(3):242-247, under forgetting:
+  /// NUMERICS §4.1, §5). The running state is aged by `lambdaBlock` = lambda^b (b accepted rows
+  /// in the block) first; `wB`, `meanB` (size K+1, y last), `syyB` are the block's forgotten
+  /// weight sum, weighted means and centered y sum of squares (the rows already weighted by
+  /// lambda^age within the block); `forgetB`/`forget2B` its forgetting sums, `rows` its count.
+  /// Returns the merge weight W_a W_b / W' of the mean difference (the caller adds
+  /// that times diff diff' to its co-moments) and leaves diff = meanB - mean (before the update).
+  template <typename V1>
+  Scalar mergeBlock(Scalar lambdaBlock, Scalar lambda2Block, Scalar wB, const V1& meanB, Scalar syyB,
+                    Scalar forgetB, Scalar forget2B, std::uint64_t rows, Intercept mode, Vector1& diff) {
+    const Eigen::Index k = m_xbar.size();
+    const Scalar wA = lambdaBlock * m_weight;
+    const Scalar wNew = wA + wB;
+    Scalar c = Scalar(0);
+    if (mode == Intercept::fit) {
+      diff.head(k) = meanB.head(k) - m_xbar;
+      diff(k) = meanB(k) - m_ybar;
+      const Scalar share = wB / wNew;
+      c = wA * share;
+      m_xbar += share * diff.head(k);
+      m_ybar += share * diff(k);
+    } else {
+      diff.setZero();
+    }
+    m_syy = lambdaBlock * m_syy + syyB + c * diff(k) * diff(k);
+    m_weight = wNew;
+    m_forget = lambdaBlock * m_forget + forgetB;
+    m_forget2 = lambda2Block * m_forget2 + forget2B;
+    m_count += rows;
+    return c;
+  }
+
   /// Commits the sample to the means and sums (call after the estimator folded `row`); the
   /// arguments must be those given to scaledRow, and `row` its output. O(K).
   /// `aged` is the sample's own forgetting weight lambda^age (1 for a sample of this step; less

@@ -33,9 +33,14 @@ namespace rowfold {
 /// online centering, statistics, conditioning, prediction.
 ///
 /// **Minimum each estimator implements** (`Derived`):
-/// - `void foldRow(const XD& x, Scalar y, Scalar w, const Vector1& row)`: age the state by
-///   lambda and fold the scaled centered row `row` = c [x - xbar, y - ybar] (raw x, y, w are
-///   given for estimators that keep raw data);
+/// - `void foldRow(const XD& x, Scalar y, Scalar w, const Vector1& d, Scalar delta)`: age the
+///   state by lambda and fold the centered row d = [x - xbar, y - ybar] with weight delta, i.e.
+///   the co-moments gain delta d d' (delta = c^2 of NUMERICS §4.1; no square root is taken, the
+///   estimator takes one only if its form needs it; the guards pass already scaled pseudo-rows
+///   with delta = 1). Age by `lambda()`, the step factor (the guards may change it per sample).
+///   Raw x, y, w are given for estimators that keep raw data;
+/// - optionally `void foldRows(X, y, w)`: fold validated rows (w == nullptr: unit weights) in
+///   blocks; the default folds them one at a time;
 /// - `std::uint64_t room() const`: how many more samples fit (capacity-bound estimators);
 /// - `void clearState()`;
 /// - `bool factorize(Workspace&) const`: fill R, z, rho, b, intercept, means, W, SST;
@@ -797,12 +802,18 @@ class EstimatorBase {
     return Status::ok;
   }
 
+  template <typename MD>
+  static bool allFiniteFast(const Eigen::MatrixBase<MD>& m) {
+    using S = typename MD::Scalar;
+    return m.size() == 0 || (m.derived().array() * S(0)).sum() == S(0);
+  }
+
   template <typename XD>
   void fold(const Eigen::MatrixBase<XD>& x, Scalar y, Scalar w, Scalar lam) {
     m_step = lam;
-    m_centering.scaledRow(x, y, w, lam, m_fit.intercept, m_row);
-    derived().foldRow(x, y, w, m_row);
-    m_centering.commit(x, y, w, lam, m_fit.intercept, m_row);
+    const auto step = m_centering.centeredRow(x, y, w, lam, m_fit.intercept, m_row);
+    derived().foldRow(x, y, w, m_row, step.delta);
+    m_centering.commitStep(step, lam, m_fit.intercept, m_row);
     m_step = m_lambda;
   }
 
@@ -811,7 +822,7 @@ class EstimatorBase {
   void foldAged(const Eigen::MatrixBase<XD>& x, Scalar y, Scalar w, Scalar aged) {
     m_step = Scalar(1);
     m_centering.scaledRow(x, y, w * aged, Scalar(1), m_fit.intercept, m_row);
-    derived().foldRow(x, y, w * aged, m_row);
+    derived().foldRow(x, y, w * aged, m_row, Scalar(1));  // a scaled row: weight 1
     m_centering.commit(x, y, w * aged, Scalar(1), m_fit.intercept, m_row, aged);
     m_step = m_lambda;
   }
@@ -849,7 +860,7 @@ class EstimatorBase {
       pseudo(j) = a;
       pseudo(m_k) = a * m_work.v3(j);
       m_step = Scalar(1);
-      derived().foldRow(m_centering.xMean(), m_centering.yMean(), Scalar(1), pseudo);
+      derived().foldRow(m_centering.xMean(), m_centering.yMean(), Scalar(1), pseudo, Scalar(1));  // a scaled row: weight 1
       m_step = m_lambda;
       m_guard.spread(j) += need;
       ++m_counters.floorRows;
@@ -942,7 +953,7 @@ class EstimatorBase {
       m_centering.scaledRow(x, y, weight, m_lambda, m_fit.intercept, m_row);
       derived().ageResidual(m_lambda);
       m_step = one;
-      derived().foldRow(x, y, weight, m_row);
+      derived().foldRow(x, y, weight, m_row, Scalar(1));  // a scaled row: weight 1
       m_step = m_lambda;
       m_centering.commit(x, y, weight, m_lambda, m_fit.intercept, m_row);
     } else {
@@ -962,7 +973,7 @@ class EstimatorBase {
       pseudo(i) = a;
       pseudo(m_k) = a * m_guard.nominal(i);
       m_step = one;
-      derived().foldRow(m_centering.xMean(), m_centering.yMean(), one, pseudo);
+      derived().foldRow(m_centering.xMean(), m_centering.yMean(), one, pseudo, Scalar(1));  // a scaled row: weight 1
       m_step = m_lambda;
       m_guard.cycle = (m_guard.cycle + 1) % static_cast<std::uint32_t>(m_k);
     }
@@ -981,25 +992,45 @@ class EstimatorBase {
     return Status::ok;
   }
 
+ protected:
+  /// Default block ingestion: one validated row at a time (zero weights skipped, they do not age
+  /// the state). Estimators with a blocked path shadow this.
+  template <typename XD, typename YD, typename WD>
+  void foldRows(const Eigen::MatrixBase<XD>& X, const Eigen::MatrixBase<YD>& y, const WD* w) {
+    for (Eigen::Index i = 0; i < X.rows(); ++i) {
+      const Scalar wi = w != nullptr ? Scalar((*w)(i)) : Scalar(1);
+      if (wi != Scalar(0)) fold(X.row(i).transpose(), Scalar(y(i)), wi, m_lambda);
+    }
+  }
+
+ private:
+
   template <typename XD, typename YD, typename WD>
   Status addRowsImpl(const Eigen::MatrixBase<XD>& X, const Eigen::MatrixBase<YD>& y, const WD* w) {
     static_assert(std::is_same<typename XD::Scalar, Scalar>::value, "rowfold: X must have the estimator's Scalar");
     if (m_status != Status::ok) return m_status;
     const Eigen::Index n = X.rows();
     if (X.cols() != m_k || y.size() != n || (w != nullptr && w->size() != n)) return Status::wrong_size;
-    for (Eigen::Index i = 0; i < n; ++i) {
-      const Scalar wi = w != nullptr ? Scalar((*w)(i)) : Scalar(1);
-      const Status s = check(X.row(i).transpose(), Scalar(y(i)), wi);
-      if (s != Status::ok) return s;
+    // Every row is validated before anything is folded. One vectorized pass over everything
+    // first (x * 0 is 0 for finite x, NaN otherwise); only when it finds a bad value does the
+    // row-by-row pass run to report the first offending row's Status.
+    const bool clean = allFiniteFast(X) && allFiniteFast(y) && (w == nullptr || (allFiniteFast(*w) && !(w->minCoeff() < 0)));
+    if (!clean) {
+      for (Eigen::Index i = 0; i < n; ++i) {
+        const Scalar wi = w != nullptr ? Scalar((*w)(i)) : Scalar(1);
+        const Status s = check(X.row(i).transpose(), Scalar(y(i)), wi);
+        if (s != Status::ok) return s;
+      }
     }
     if (derived().room() < static_cast<std::uint64_t>(n)) return Status::capacity_full;
+    if (!m_guarded) {
+      derived().foldRows(X, y, w);  // blocked where the estimator has a blocked path
+      return Status::ok;
+    }
     for (Eigen::Index i = 0; i < n; ++i) {
       const Scalar wi = w != nullptr ? Scalar((*w)(i)) : Scalar(1);
       if (wi == Scalar(0)) continue;
-      if (m_guarded)
-        guardedFold(X.row(i).transpose(), Scalar(y(i)), wi);  // a gated row is skipped and counted
-      else
-        fold(X.row(i).transpose(), Scalar(y(i)), wi, m_lambda);
+      guardedFold(X.row(i).transpose(), Scalar(y(i)), wi);  // a gated row is skipped and counted
     }
     return Status::ok;
   }

@@ -37,7 +37,9 @@ struct ForgettingRlsOptions : FitOptions {
 ///   g = P phi,  alpha = lambda + phi'g,  e = eta - phi'theta,
 ///   theta += g e / alpha,  P = (P - g g'/alpha) / lambda,  SSE = lambda SSE + lambda e^2/alpha.
 /// ```
-/// Only the lower triangle of P is updated (symmetry by construction, Verhaegen 1989).
+/// P is kept as a full matrix whose two triangles are updated by bit-identical operations
+/// (symmetry by construction, Verhaegen 1989). A row enters unscaled with its weight delta
+/// (NUMERICS §4.1), so no square root is taken.
 /// Coefficients are current after every sample: solve() costs O(K).
 ///
 /// **Start:** exact initialization by default (see RlsStart) — the first samples are
@@ -88,7 +90,13 @@ class ForgettingRls : public EstimatorBase<ForgettingRls<Scalar_, K_, MaxK_>, Sc
   /// Runtime K (any K > 0 for Eigen::Dynamic; must equal K otherwise, else status() is
   /// `wrong_size`). Allocates P, theta and the gain for Eigen::Dynamic K, nothing later.
   ForgettingRls(Eigen::Index k, const Options& options)
-      : Base(k, options), m_options(options), m_P(k, k), m_theta(k), m_gain(k) {
+      : Base(k, options),
+        m_options(options),
+        m_P(k, k),
+        m_theta(k),
+        m_gain(k),
+        m_lambdaOption(static_cast<Scalar>(options.forgetting)),
+        m_invLambda(Scalar(1) / m_lambdaOption) {
     if (this->status() == Status::ok && options.start == RlsStart::prior &&
         !(options.priorPrecision > 0.0 && std::isfinite(options.priorPrecision)))
       m_badOptions = true;
@@ -100,7 +108,7 @@ class ForgettingRls : public EstimatorBase<ForgettingRls<Scalar_, K_, MaxK_>, Sc
   Status status() const { return m_badOptions ? Status::invalid_options : Base::status(); }
   /// True once P and theta are being updated recursively (after the exact start).
   bool recursive() const { return m_recursive; }
-  /// P = (X~'X~)^-1 (lower triangle valid; meaningful when recursive()).
+  /// P = (X~'X~)^-1 (lower triangle valid; meaningful when recursive(), then both triangles).
   const Matrix& covarianceFactor() const { return m_P; }
   /// Current slopes theta (meaningful when recursive(); before, the storage holds m = X~'y~).
   const Vector& theta() const { return m_theta; }
@@ -156,7 +164,7 @@ class ForgettingRls : public EstimatorBase<ForgettingRls<Scalar_, K_, MaxK_>, Sc
   }
 
   template <typename XD>
-  void foldRow(const Eigen::MatrixBase<XD>&, Scalar, Scalar, const Vector1& row) {
+  void foldRow(const Eigen::MatrixBase<XD>&, Scalar, Scalar, const Vector1& row, Scalar delta) {
     const Eigen::Index k = this->regressors();
     const Scalar lambda = this->lambda();
     const auto phi = row.head(k);
@@ -167,29 +175,61 @@ class ForgettingRls : public EstimatorBase<ForgettingRls<Scalar_, K_, MaxK_>, Sc
         m_P.template triangularView<Eigen::Lower>() *= lambda;
         m_theta *= lambda;
       }
-      m_P.template selfadjointView<Eigen::Lower>().rankUpdate(phi, Scalar(1));
-      m_theta += eta * phi;
-      tryStart(lambda * this->centering().yySum() + eta * eta);
+      for (Eigen::Index j = 0; j < k; ++j) {
+        const Scalar a = delta * phi(j);
+        for (Eigen::Index i = j; i < k; ++i) m_P(i, j) += a * phi(i);
+      }
+      m_theta += (delta * eta) * phi;
+      tryStart(lambda * this->centering().yySum() + delta * eta * eta);
       return;
     }
-    m_gain.noalias() = m_P.template selfadjointView<Eigen::Lower>() * phi;
-    const Scalar alpha = lambda + phi.dot(m_gain);
+    // The row enters with weight delta (phi and eta unscaled): with g = P phi,
+    //   alpha = lambda + delta phi'g,  kappa = delta / alpha,  theta += kappa e g,
+    //   P = (P - kappa g g') / lambda,  SSE = lambda (SSE + kappa e^2).
+    // P is kept as a full symmetric matrix (both triangles) so that every pass is a contiguous
+    // column sweep; g_i g_j is formed before scaling so both triangles stay bit-identical.
+    Scalar* const P = m_P.data();
+    Scalar* __restrict g = m_gain.data();
+    const Scalar* __restrict v = phi.data();
+    for (Eigen::Index i = 0; i < k; ++i) g[i] = Scalar(0);
+    for (Eigen::Index j = 0; j < k; ++j) {
+      const Scalar* __restrict pj = P + j * k;
+      const Scalar vj = v[j];
+      for (Eigen::Index i = 0; i < k; ++i) g[i] += pj[i] * vj;
+    }
+    const Scalar alpha = lambda + delta * phi.dot(m_gain);
     const Scalar e = eta - phi.dot(m_theta);
     if (!(alpha > Scalar(0)) || !std::isfinite(alpha)) {
       m_lost = true;
       return;
     }
-    m_theta += (e / alpha) * m_gain;
-    m_P.template selfadjointView<Eigen::Lower>().rankUpdate(m_gain, -Scalar(1) / alpha);
-    if (lambda != Scalar(1)) m_P.template triangularView<Eigen::Lower>() /= lambda;
-    m_sse = lambda * m_sse + lambda * e * e / alpha;
-    for (Eigen::Index i = 0; i < k; ++i)
-      if (!(m_P(i, i) > Scalar(0))) m_lost = true;
+    const Scalar kappa = delta / alpha;
+    m_theta += (kappa * e) * m_gain;
+    bool positive = true;
+    if (lambda == Scalar(1)) {
+      for (Eigen::Index j = 0; j < k; ++j) {
+        Scalar* __restrict pj = P + j * k;
+        const Scalar gj = g[j];
+        for (Eigen::Index i = 0; i < k; ++i) pj[i] -= (g[i] * gj) * kappa;
+        positive = positive && pj[j] > Scalar(0);
+      }
+    } else {
+      // 1/lambda: precomputed for the configured factor; a guard's step factor divides here.
+      const Scalar il = lambda == m_lambdaOption ? m_invLambda : Scalar(1) / lambda, s = kappa * il;
+      for (Eigen::Index j = 0; j < k; ++j) {
+        Scalar* __restrict pj = P + j * k;
+        const Scalar gj = g[j];
+        for (Eigen::Index i = 0; i < k; ++i) pj[i] = pj[i] * il - (g[i] * gj) * s;
+        positive = positive && pj[j] > Scalar(0);
+      }
+    }
+    m_sse = lambda * (m_sse + kappa * e * e);
+    if (!positive) m_lost = true;
   }
 
   void ageState(Scalar f) {
     if (m_recursive) {
-      m_P.template triangularView<Eigen::Lower>() /= f;
+      m_P /= f;  // both triangles (kept symmetric)
       m_sse *= f;
     } else {
       m_P.template triangularView<Eigen::Lower>() *= f;
@@ -278,6 +318,8 @@ class ForgettingRls : public EstimatorBase<ForgettingRls<Scalar_, K_, MaxK_>, Sc
     detail::invertUpper(ws.scratch, ws.Rinv);
     m_theta = ws.v2;
     m_P.noalias() = ws.Rinv.lazyProduct(ws.Rinv.transpose());  // Rinv is upper triangular, zeros below
+    for (Eigen::Index j = 1; j < k; ++j)  // exactly symmetric (both triangles are updated)
+      for (Eigen::Index i = 0; i < j; ++i) m_P(i, j) = m_P(j, i);
     m_sse = sse;
     m_recursive = true;
   }
@@ -342,6 +384,8 @@ class ForgettingRls : public EstimatorBase<ForgettingRls<Scalar_, K_, MaxK_>, Sc
   Matrix m_P;
   Vector m_theta;
   Vector m_gain;
+  Scalar m_lambdaOption;  // lambda of the options
+  Scalar m_invLambda;     // 1/lambda
   Scalar m_sse = 0;
   bool m_recursive = false;
   bool m_lost = false;

@@ -41,7 +41,9 @@ enum class EstimatorKind : std::uint8_t { batch_qr = 1, givens_qr = 2, normal_eq
 
 /// Format version written at offset 4 of every image; `restore` accepts only this version
 /// (`Status::image_mismatch` otherwise).
-constexpr std::uint16_t kSnapshotVersion = 2;  // 2: guard options and state in the payload
+/// 2: guard options and state in the payload; 3: GivensQr keeps the square-root-free factor
+/// (d, Rbar and a power-of-4 scale) instead of [R z; 0 rho].
+constexpr std::uint16_t kSnapshotVersion = 3;
 
 namespace detail {
 

@@ -1,0 +1,129 @@
+/// @file
+/// Blocked ingestion shared by the estimators' addRows: gathers a block of validated rows,
+/// weights them by forgetting within the block, centers them on the block's weighted means and
+/// merges those means into the running centering (pairwise update, Chan, Golub & LeVeque 1983).
+#pragma once
+
+#include <Eigen/Core>
+#include <cstdint>
+
+#include "rowfold/centering.hpp"
+#include "rowfold/detail/dims.hpp"
+#include "rowfold/options.hpp"
+
+namespace rowfold::detail {
+
+/// Scratch for one block of rows [x y] (column-major, so each column of the block is
+/// contiguous) and their weights. Sized once at construction (about 1024 scalars).
+template <typename Scalar, int K, int MaxK>
+class RowBlock {
+  using D = Dims<Scalar, K, MaxK>;
+
+ public:
+  /// Rows per block for a compile-time bound on K: about 1024 scalars, 8..64 rows.
+  static constexpr int kFixedRows =
+      D::MaxK1 == Eigen::Dynamic ? Eigen::Dynamic
+                                 : (1024 / D::MaxK1 < 8 ? 8 : (1024 / D::MaxK1 > 64 ? 64 : 1024 / D::MaxK1));
+  using Block = Eigen::Matrix<Scalar, Eigen::Dynamic, D::K1, Eigen::ColMajor, kFixedRows, D::MaxK1>;
+  using Weights = Eigen::Matrix<Scalar, Eigen::Dynamic, 1, Eigen::ColMajor, kFixedRows, 1>;
+  using Vector1 = typename D::Vector1;
+
+  /// What a block contributes besides its centered rows.
+  struct Merge {
+    Scalar ageing;  ///< lambda^b: factor on the running state's co-moments (b rows in the block)
+    Scalar weight;  ///< W_A W_B / W': weight of the mean-difference row `diff`
+    bool unit;      ///< every row weight is exactly 1 (no weights, no forgetting)
+  };
+
+  static Eigen::Index rowsFor(Eigen::Index k) {
+    if (D::MaxK1 != Eigen::Dynamic) return kFixedRows;
+    const Eigen::Index r = 1024 / (k + 1);
+    return r < 8 ? 8 : (r > 64 ? 64 : r);
+  }
+
+  explicit RowBlock(Eigen::Index k)
+      : m_z(rowsFor(k), k + 1), m_omega(rowsFor(k)), m_tmp(rowsFor(k)), m_mean(k + 1), m_diff(k + 1) {
+    m_z.setZero();
+    m_omega.setZero();
+    m_tmp.setZero();
+    m_mean.setZero();
+    m_diff.setZero();
+  }
+
+  /// Copies the next block of rows with nonzero weight from row `i` on (advancing `i`); returns
+  /// the number of rows gathered (0 when none are left). Zero-weight rows are skipped: like in
+  /// `add`, they do not age the state.
+  template <typename XD, typename YD, typename WD>
+  Eigen::Index gather(const Eigen::MatrixBase<XD>& X, const Eigen::MatrixBase<YD>& y, const WD* w, Eigen::Index& i) {
+    const Eigen::Index k = X.cols(), cap = m_z.rows(), rows = X.rows();
+    Eigen::Index nb = 0;
+    if (w == nullptr) {
+      nb = rows - i < cap ? rows - i : cap;
+      if constexpr (K != Eigen::Dynamic) {
+        m_z.topRows(nb).template leftCols<K>() = X.middleRows(i, nb);  // fixed row length: inline copies
+      } else {
+        m_z.topLeftCorner(nb, k) = X.middleRows(i, nb);
+      }
+      m_z.col(k).head(nb) = y.segment(i, nb).template cast<Scalar>();
+      m_omega.head(nb).setOnes();
+      i += nb;
+      return nb;
+    }
+    for (; i < rows && nb < cap; ++i) {
+      const Scalar wi = Scalar((*w)(i));
+      if (wi == Scalar(0)) continue;
+      m_z.row(nb).head(k) = X.row(i);
+      m_z(nb, k) = Scalar(y(i));
+      m_omega(nb) = wi;
+      ++nb;
+    }
+    return nb;
+  }
+
+  /// Weights the nb gathered rows by lambda^age (age nb-1-r for row r at the end of the block),
+  /// centers them on their weighted means (`Intercept::fit`) and merges the block's weight sums
+  /// and means into `centering` (NUMERICS §4.1, §5). Afterwards rows() holds the centered rows,
+  /// weights() their weights, diff() = block mean - old running mean.
+  Merge prepare(Eigen::Index nb, Scalar lambda, Intercept mode, Centering<Scalar, K, MaxK>& centering) {
+    const Eigen::Index n = m_z.cols();
+    Scalar p = Scalar(1), f = Scalar(0), f2 = Scalar(0);
+    bool unit = lambda == Scalar(1);
+    if (unit) {
+      f = f2 = Scalar(nb);
+      unit = (m_omega.head(nb).array() == Scalar(1)).all();
+    } else {
+      for (Eigen::Index r = nb - 1; r >= 0; --r) {
+        m_omega(r) *= p;
+        f += p;
+        f2 += p * p;
+        p *= lambda;
+      }
+    }
+    const auto om = m_omega.head(nb);
+    const Scalar wB = om.sum();
+    if (mode == Intercept::fit) {
+      for (Eigen::Index j = 0; j < n; ++j) {
+        m_mean(j) = om.dot(m_z.col(j).head(nb)) / wB;
+        m_z.col(j).head(nb).array() -= m_mean(j);
+      }
+    } else {
+      m_mean.setZero();
+    }
+    const Scalar syyB = om.dot(m_z.col(n - 1).head(nb).cwiseAbs2());
+    const Scalar c =
+        centering.mergeBlock(p, p * p, wB, m_mean, syyB, f, f2, static_cast<std::uint64_t>(nb), mode, m_diff);
+    return Merge{p, c, unit};
+  }
+
+  Block& rows() { return m_z; }
+  const Weights& weights() const { return m_omega; }
+  Weights& tmp() { return m_tmp; }
+  const Vector1& diff() const { return m_diff; }
+
+ private:
+  Block m_z;
+  Weights m_omega, m_tmp;
+  Vector1 m_mean, m_diff;
+};
+
+}  // namespace rowfold::detail
