@@ -148,7 +148,7 @@ class EstimatorBase {
   /// `windup_guarded` of the last sample show in the flags of the queries.
   ///
   /// Cost: O(K) checks + the estimator's update (BatchQr O(K), NormalEquations ~K^2/2,
-  /// GivensQr ~2K^2 and K+1 square roots, ForgettingRls ~2K^2); the guarded path adds O(K^2)
+  /// GivensQr ~2K^2 without square roots, ForgettingRls ~2K^2); the guarded path adds O(K^2)
   /// (GivensQr, ForgettingRls) or a Cholesky factorization, O(K^3/6) (NormalEquations), and,
   /// when the information floor acts, up to K pseudo-row updates. Never allocates.
   template <typename XD>
@@ -221,7 +221,10 @@ class EstimatorBase {
   /// `capacity_full` when fewer than n more samples fit (zero-weight rows count here, although they
   /// are not stored); otherwise `ok`. Zero-weight rows are skipped. Math and flags as add().
   ///
-  /// Cost: O(n K) validation + n times the estimator's update. Never allocates.
+  /// Cost: O(n K) validation (one vectorized pass; row by row only to report a bad row) + n
+  /// times the estimator's update; unguarded GivensQr and NormalEquations fold in blocks
+  /// (merged with the pairwise centering update; equal to row-by-row folding up to rounding).
+  /// Never allocates.
   template <typename XD, typename YD>
   Status addRows(const Eigen::MatrixBase<XD>& X, const Eigen::MatrixBase<YD>& y) {
     return addRowsImpl(X, y, static_cast<const Vector*>(nullptr));
