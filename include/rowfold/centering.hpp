@@ -33,7 +33,8 @@ namespace rowfold {
 /// the means carry a relative error of a few u, which the conditioning analysis accounts for.
 ///
 /// **Cost:** O(K) per sample, no allocation after construction. Estimators own one Centering
-/// and drive it (scaledRow, then their own fold, then commit); users normally only read it
+/// and drive it (scaledRow or centeredRow, then their own fold, then commit or commitStep;
+/// mergeBlock for blocked addRows); users normally only read it
 /// through EstimatorBase::centering().
 template <typename Scalar, int K, int MaxK = K>
 class Centering {
