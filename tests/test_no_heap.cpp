@@ -66,6 +66,7 @@ TEST_CASE_TEMPLATE_DEFINE("no heap in the hot path", F, noheap_id) {
   typename Est::SolutionType sol(4);
   typename Est::SummaryType sum(4);
   typename Est::ConditioningType cond(4);
+  typename Est::Matrix cov(4, 4), corr(4, 4);
   Eigen::Matrix<Scalar, Eigen::Dynamic, Eigen::Dynamic> X(8, 4);
   Eigen::Matrix<Scalar, Eigen::Dynamic, 1> y(8), x0(4);
   Lcg g;
@@ -96,6 +97,8 @@ TEST_CASE_TEMPLATE_DEFINE("no heap in the hot path", F, noheap_id) {
   (void)est.solveInto(sol);
   (void)est.summarizeInto(sum, Scalar(0.95));
   (void)est.conditioningInto(cond);
+  const Status covStatus = est.covariance(cov);
+  (void)est.correlation(corr);
   const Scalar p = est.predict(x0);
   const auto pi = est.predictionInterval(x0, Scalar(0.9));
   std::size_t written = 0;
@@ -111,6 +114,7 @@ TEST_CASE_TEMPLATE_DEFINE("no heap in the hot path", F, noheap_id) {
   // The calls did real work (a fence around nothing would prove nothing).
   CHECK(rows == Status::ok);
   CHECK(merged == Status::ok);
+  CHECK(covStatus == Status::ok);
   CHECK(sol.status == Status::ok);
   CHECK(sum.status == Status::ok);
   CHECK(cond.status == Status::ok);

@@ -337,6 +337,16 @@ TEST_CASE("guards: snapshots carry the guard state (bit-identical continuation) 
   rowfold::BatchQrOptions batch;
   batch.outliers.enabled = true;  // BatchQr has no gate: say so instead of ignoring it
   CHECK(rowfold::BatchQr<double, 2>(batch).status() == Status::invalid_options);
+  // An estimator's own bad options make add() say so (not capacity_full).
+  rowfold::BatchQrOptions noRows;
+  noRows.capacity = 0;
+  CHECK(rowfold::BatchQr<double, 2>(noRows).add(V2<double>(1, 2), 1.0) == Status::invalid_options);
+  rowfold::ForgettingRlsOptions badPrior;
+  badPrior.start = rowfold::RlsStart::prior;
+  badPrior.priorPrecision = -1;
+  rowfold::ForgettingRls<double, 2> rls(badPrior);
+  CHECK(rls.add(V2<double>(1, 2), 1.0) == Status::invalid_options);
+  CHECK(rls.addRows(Eigen::Matrix<double, 3, 2>::Ones(), Eigen::Vector3d::Ones()) == Status::invalid_options);
 }
 
 TEST_CASE_TEMPLATE("delayed lab samples enter with lambda^age: the fit equals the on-time fit", E,

@@ -53,7 +53,7 @@ struct BatchQrOptions : FitOptions {
 ///
 /// **Status and flags:** those of EstimatorBase, plus `capacity_full` from add/addRows when
 /// the buffer is full (never with `slide`), and `invalid_options` from status() (capacity <= 0
-/// or refinementSteps < 0; add then returns `capacity_full`). Fewer rows than coefficients, or a
+/// or refinementSteps < 0; add then returns `invalid_options` too). Fewer rows than coefficients, or a
 /// numerically dependent column, take the basic-solution path without refinement
 /// (`rank_deficient`).
 ///

@@ -59,9 +59,8 @@ namespace rowfold {
 ///
 /// Allocation: fixed K allocates nothing, ever. Eigen::Dynamic K allocates in the constructor
 /// only, except for what a call returns or builds itself: the value forms solve(), summarize(),
-/// conditioning() allocate their result, and covariance()/correlation() a temporary K-vector
-/// (none of these with a bounded MaxK); the ...Into forms with results sized once never
-/// allocate. No member function throws.
+/// conditioning() allocate their result (not with a bounded MaxK); the ...Into forms,
+/// covariance() and correlation() with results sized once never allocate. No member function throws.
 ///
 /// Threads: the const queries (solve, summarize, conditioning, predict) use scratch storage
 /// inside the object, so one estimator must not be queried from two threads at once; copies
@@ -142,8 +141,7 @@ class EstimatorBase {
   /// Returns, checked in this order before anything is written: the construction status if it
   /// is not `ok`; `wrong_size` (x.size() != K); `negative_weight` (w < 0, NaN or Inf);
   /// `nonfinite_input` (NaN or Inf in x or y); `ok` for w == 0 (nothing folded);
-  /// `capacity_full` (no room: a full non-sliding BatchQr, or an estimator whose own options
-  /// are invalid); `outlier` (the gate refused it: the fit is untouched, only guardCounters()
+  /// `capacity_full` (no room: a full non-sliding BatchQr); `outlier` (the gate refused it: the fit is untouched, only guardCounters()
   /// count it); otherwise `ok`. Raises no flags itself: the guard's `low_excitation` and
   /// `windup_guarded` of the last sample show in the flags of the queries.
   ///
@@ -403,6 +401,7 @@ class EstimatorBase {
   /// §6.5). Cost: the estimator's factorization + O(K^3) + one t quantile.
   Status summarizeInto(SummaryType& out, Scalar level = Scalar(0.95)) const {
     if (count() == 0) {
+      out.flags = Flags();
       out.status = Status::empty;
       return out.status;
     }
@@ -445,6 +444,7 @@ class EstimatorBase {
   /// factorization + O(K^3) (R^-1 and the VIFs). Never allocates once `out` is sized.
   Status conditioningInto(ConditioningType& out) const {
     if (count() == 0) {
+      out.flags = Flags();
       out.status = Status::empty;
       return out.status;
     }
@@ -496,6 +496,7 @@ class EstimatorBase {
     if (count() == 0) return out;
     if (!factorizeChecked()) {
       out.status = Status::not_available;
+      out.flags = m_work.flags;  // e.g. lost_definiteness, near_singular
       return out;
     }
     detail::analyzePrediction(m_work, facts(), level, x0, out);
@@ -596,12 +597,10 @@ class EstimatorBase {
   }
 
   /// Weighted covariance matrix of the regressors, M / W (see crossProducts: same Status values
-  /// and cost). Note: uses a temporary K-vector, which allocates when K and MaxK are both
-  /// Eigen::Dynamic.
+  /// and cost). Allocates nothing once C is sized for K.
   Status covariance(Matrix& C) const {
-    Vector m(m_k);
     Scalar syy = 0;
-    const Status s = crossProducts(C, m, syy);
+    const Status s = crossProducts(C, m_work.v4, syy);  // m = X~'y~ into scratch: no allocation
     if (s == Status::ok) C /= weightSum();
     return s;
   }
@@ -798,7 +797,7 @@ class EstimatorBase {
 
   template <typename XD>
   Status check(const Eigen::MatrixBase<XD>& x, Scalar y, Scalar w) const {
-    if (m_status != Status::ok) return m_status;
+    if (derived().status() != Status::ok) return derived().status();  // incl. the estimator's own options
     if (x.size() != m_k) return Status::wrong_size;
     if (!(w >= Scalar(0)) || !std::isfinite(w)) return Status::negative_weight;
     if (!std::isfinite(y) || !x.allFinite()) return Status::nonfinite_input;
@@ -1011,7 +1010,7 @@ class EstimatorBase {
   template <typename XD, typename YD, typename WD>
   Status addRowsImpl(const Eigen::MatrixBase<XD>& X, const Eigen::MatrixBase<YD>& y, const WD* w) {
     static_assert(std::is_same<typename XD::Scalar, Scalar>::value, "rowfold: X must have the estimator's Scalar");
-    if (m_status != Status::ok) return m_status;
+    if (derived().status() != Status::ok) return derived().status();
     const Eigen::Index n = X.rows();
     if (X.cols() != m_k || y.size() != n || (w != nullptr && w->size() != n)) return Status::wrong_size;
     // Every row is validated before anything is folded. One vectorized pass over everything

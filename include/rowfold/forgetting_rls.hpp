@@ -58,7 +58,7 @@ struct ForgettingRlsOptions : FitOptions {
 /// factor P). State: K^2 (P, lower triangle used) + 2K scalars + centering.
 ///
 /// **Status and flags:** those of EstimatorBase, plus `invalid_options` from status() for a
-/// prior start with priorPrecision not > 0 and finite (add then returns `capacity_full`).
+/// prior start with priorPrecision not > 0 and finite (add then returns `invalid_options` too).
 /// `lost_definiteness` is sticky: once alpha <= 0 (or non-finite) or a diagonal entry of P
 /// is <= 0, the flag stays on every result until reset(); a row that gives alpha <= 0 is not
 /// applied to P and theta (the centering still counts it). The queries that factor P

@@ -15,8 +15,7 @@ namespace rowfold {
 ///   (`nonfinite_input` also `setNominal`).
 /// - `wrong_size`: `status()` (k does not match K), `add`, `addDelayed`, `addRows`,
 ///   `predictionInterval`, `restore`, `setNominal`, GivensQr::remove.
-/// - `capacity_full`: `add`, `addRows`, `merge` (BatchQr full, or an estimator whose own options
-///   are invalid).
+/// - `capacity_full`: `add`, `addRows`, `merge` (BatchQr full).
 /// - `invalid_options`: `validate`, `status()` (also: the outlier gate enabled for BatchQr),
 ///   `relax` (factor outside (0, 1]), and the calls that check the status first (`add`,
 ///   `addRows`, `restore`, `merge`, `advance`, ...).
