@@ -79,6 +79,8 @@ template <typename Scalar_, int K_, int Capacity_ = Eigen::Dynamic, int MaxK_ = 
 class BatchQr : public EstimatorBase<BatchQr<Scalar_, K_, Capacity_, MaxK_>, Scalar_, K_, MaxK_> {
   using Base = EstimatorBase<BatchQr<Scalar_, K_, Capacity_, MaxK_>, Scalar_, K_, MaxK_>;
   friend Base;
+  template <typename, int>
+  friend class MultiResponse;  // reads the shared state, writes a response's view
 
  public:
   using typename Base::Dims;  ///< see EstimatorBase

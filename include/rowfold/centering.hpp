@@ -11,6 +11,9 @@
 
 namespace rowfold {
 
+template <typename Estimator, int M>
+class MultiResponse;
+
 /// Running weighted means of x and y, the weight sums, and the centered sum of squares of y.
 ///
 /// Update for a sample (x, y) with weight w under forgetting lambda (West 1979, CACM 22(9);
@@ -38,6 +41,9 @@ namespace rowfold {
 /// through EstimatorBase::centering().
 template <typename Scalar, int K, int MaxK = K>
 class Centering {
+  template <typename, int>
+  friend class MultiResponse;  // builds a response's view from a shared record
+
  public:
   using Dims = detail::Dims<Scalar, K, MaxK>;  ///< size arithmetic (internal)
   using Vector = typename Dims::Vector;  ///< K-vector type

@@ -83,6 +83,9 @@ namespace rowfold {
 /// `snapshot`/`restore` O(image size).
 template <typename Derived, typename Scalar_, int K_, int MaxK_>
 class EstimatorBase {
+  template <typename, int>
+  friend class MultiResponse;  // builds a response's view from a shared state
+
  public:
   using Scalar = Scalar_;  ///< float, double or long double
   static constexpr int K = K_;  ///< regressors at compile time, or Eigen::Dynamic

@@ -69,6 +69,8 @@ template <typename Scalar_, int K_, int MaxK_ = K_>
 class ForgettingRls : public EstimatorBase<ForgettingRls<Scalar_, K_, MaxK_>, Scalar_, K_, MaxK_> {
   using Base = EstimatorBase<ForgettingRls<Scalar_, K_, MaxK_>, Scalar_, K_, MaxK_>;
   friend Base;
+  template <typename, int>
+  friend class MultiResponse;  // reads the shared state, writes a response's view
 
  public:
   using typename Base::Dims;  ///< see EstimatorBase

@@ -67,6 +67,8 @@ template <typename Scalar_, int K_, int MaxK_ = K_>
 class GivensQr : public EstimatorBase<GivensQr<Scalar_, K_, MaxK_>, Scalar_, K_, MaxK_> {
   using Base = EstimatorBase<GivensQr<Scalar_, K_, MaxK_>, Scalar_, K_, MaxK_>;
   friend Base;
+  template <typename, int>
+  friend class MultiResponse;  // reads the shared state, writes a response's view
 
  public:
   using typename Base::Dims;  ///< see EstimatorBase

@@ -50,6 +50,8 @@ template <typename Scalar_, int K_, int MaxK_ = K_>
 class NormalEquations : public EstimatorBase<NormalEquations<Scalar_, K_, MaxK_>, Scalar_, K_, MaxK_> {
   using Base = EstimatorBase<NormalEquations<Scalar_, K_, MaxK_>, Scalar_, K_, MaxK_>;
   friend Base;
+  template <typename, int>
+  friend class MultiResponse;  // reads the shared state, writes a response's view
 
  public:
   using typename Base::Dims;  ///< see EstimatorBase

@@ -7,6 +7,7 @@
 #include "rowfold/estimator_base.hpp"
 #include "rowfold/forgetting_rls.hpp"
 #include "rowfold/givens_qr.hpp"
+#include "rowfold/multi_response.hpp"
 #include "rowfold/normal_equations.hpp"
 #include "rowfold/options.hpp"
 #include "rowfold/results.hpp"

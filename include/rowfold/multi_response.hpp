@@ -1,0 +1,672 @@
+/// @file
+/// MultiResponse: M responses fitted on the same regressors with one shared factor.
+#pragma once
+
+#include <Eigen/Core>
+#include <cmath>
+#include <cstdint>
+#include <cstring>
+#include <limits>
+#include <type_traits>
+
+#include "rowfold/batch_qr.hpp"
+#include "rowfold/detail/cholesky.hpp"
+#include "rowfold/detail/triangular.hpp"
+#include "rowfold/forgetting_rls.hpp"
+#include "rowfold/givens_qr.hpp"
+#include "rowfold/normal_equations.hpp"
+
+namespace rowfold {
+
+namespace detail {
+
+/// Columns of the joint state [X Y_1..Y_{M-1}] that the stacked form treats as regressors.
+constexpr int jointColumns(int k, int m) { return k == Eigen::Dynamic || m == Eigen::Dynamic ? Eigen::Dynamic : k + m - 1; }
+/// M - 1 extra responses (or Dynamic).
+constexpr int extraColumns(int m) { return m == Eigen::Dynamic ? Eigen::Dynamic : m - 1; }
+
+/// How a single-response estimator type carries M responses (see MultiResponse).
+template <typename Estimator>
+struct ResponseFamily;
+
+template <typename S, int K, int MaxK>
+struct ResponseFamily<GivensQr<S, K, MaxK>> {
+  template <int K2, int MaxK2>
+  using Rebind = GivensQr<S, K2, MaxK2>;
+  static constexpr int form = 0;  // stacked factor
+};
+template <typename S, int K, int MaxK>
+struct ResponseFamily<NormalEquations<S, K, MaxK>> {
+  template <int K2, int MaxK2>
+  using Rebind = NormalEquations<S, K2, MaxK2>;
+  static constexpr int form = 0;  // stacked factor (co-moments)
+};
+template <typename S, int K, int Capacity, int MaxK>
+struct ResponseFamily<BatchQr<S, K, Capacity, MaxK>> {
+  template <int K2, int MaxK2>
+  using Rebind = BatchQr<S, K2, Capacity, MaxK2>;
+  static constexpr int form = 1;  // stacked rows
+};
+template <typename S, int K, int MaxK>
+struct ResponseFamily<ForgettingRls<S, K, MaxK>> {
+  template <int K2, int MaxK2>
+  using Rebind = ForgettingRls<S, K, MaxK>;  // the shared-gain form keeps K columns
+  static constexpr int form = 2;  // shared gain
+};
+
+}  // namespace detail
+
+/// M responses y_1..y_M fitted on the same K regressors (a multivariate regression
+/// Y = 1 b0' + X B + E with K x M slopes B): one state of the regressors, M right-hand sides,
+/// and a single-response view of each response for its statistics.
+/// ```
+///   rowfold::MultiResponse<rowfold::GivensQr<double, 3>, 2> fit;   // K = 3, M = 2
+///   fit.add(x, y);                           // y: the M responses of one sample
+///   auto b = fit.response(1).solve();        // response 2: slopes, intercept, flags
+///   auto s = fit.response(0).summarize();    // SEs, intervals, R^2 of response 1
+/// ```
+///
+/// **Math.** The centered, weighted data [X~ Y~] have one upper-triangular factor
+/// [R Z; 0 T] ((K+M) x (K+M)): R'R = X~'X~ is shared, R B = Z, and T'T = E'E is the residual
+/// cross-product matrix (Golub & Van Loan 2013 §5.3, multiple right-hand sides; Anderson 2003,
+/// An Introduction to Multivariate Statistical Analysis §8.2 — section numbers from memory).
+/// Response j's own factor is [R z_j; 0 rho_j] with z_j = Z(:, j) and rho_j = |T(:, j)|, which
+/// is exactly the state a single-response estimator fed (x, y_j) would hold. How the state is
+/// kept depends on the estimator (`Estimator` names the single-response type and its options):
+/// - GivensQr, NormalEquations (*stacked factor*): one estimator over the K + M - 1 columns
+///   [x, y_1..y_{M-1}] with y_M as its response: its factor (co-moments) is that of [X~ Y~],
+///   one update of ~(K+M)^2/2 (NormalEquations) or ~2 (K+M)^2 (GivensQr) per sample instead of
+///   M times ~(K+1)^2.
+/// - BatchQr (*stacked rows*): the rows [x, y_1..y_M] are stored once; each response's query
+///   copies its column into a single-response view (O(n K)) and solves it there with BatchQr's
+///   refinement, which is per right-hand side.
+/// - ForgettingRls (*shared gain*): P and the gain g = P phi depend on the regressors only, so
+///   one recursion updates P and every theta_j += (delta / alpha) e_j g; each response adds
+///   O(K) per sample to the O(K^2) of P. Before the exact start each response accumulates its
+///   co-moments X~'y~_j; at the start each theta_j is solved from the same factor.
+///
+/// **Stability:** that of the estimator (class comments): GivensQr and BatchQr backward
+/// stable, NormalEquations and ForgettingRls square the condition number. A response's view
+/// is the single-response state of that response up to the rounding of the shared update.
+///
+/// **Views.** response(j) forms the single-response estimator of response j on demand
+/// (GivensQr: O((K+M)^2) to form the explicit factor, with square roots; NormalEquations and
+/// ForgettingRls O(K^2); BatchQr O(n K)) into storage inside this object: the reference is
+/// valid until the next call of response() or of a query of this object. Every query of
+/// EstimatorBase (solve, summarize, conditioning, predictionInterval, covariance, ...) works on
+/// it, with the statistics of that response. It can also be copied out and fed on.
+///
+/// **What is not carried over.** The windup guard and the outlier gate decide on one
+/// response's prediction error; they are not available here: options that enable the outlier
+/// gate, or the windup guard with lambda < 1 (its default), make status() `invalid_options`
+/// (set `windup.enabled = false` to fit with forgetting and no guard). merge() returns
+/// `not_available` for ForgettingRls (its merge works on the factor of one response).
+///
+/// **Allocation:** none for fixed K and M (BatchQr: fixed Capacity too); Eigen::Dynamic sizes
+/// allocate at construction only. No member function throws. Threads: as EstimatorBase (the
+/// queries use scratch inside the object).
+template <typename Estimator, int M_ = Eigen::Dynamic>
+class MultiResponse {
+  using Family = detail::ResponseFamily<Estimator>;
+  static constexpr int kForm = Family::form;
+
+ public:
+  using Scalar = typename Estimator::Scalar;  ///< float, double or long double
+  static constexpr int K = Estimator::K;  ///< regressors at compile time, or Eigen::Dynamic
+  static constexpr int MaxK = Estimator::MaxK;  ///< compile-time bound on K
+  static constexpr int M = M_;  ///< responses at compile time, or Eigen::Dynamic
+  using Options = typename Estimator::Options;  ///< options of the single-response estimator
+  using Single = Estimator;  ///< type of a response's view
+  using Vector = typename Estimator::Vector;  ///< K-vector type
+  using ResponseVector = Eigen::Matrix<Scalar, M, 1>;  ///< one sample's M responses
+  static_assert(M == Eigen::Dynamic || M > 0, "rowfold: M must be positive or Eigen::Dynamic");
+
+ private:
+  static constexpr int KJ = kForm == 2 ? K : detail::jointColumns(K, M);
+  static constexpr int MaxKJ = kForm == 2 ? MaxK : detail::jointColumns(MaxK, M);
+  static constexpr int MX = detail::extraColumns(M);
+  using Joint = typename Family::template Rebind<KJ, MaxKJ>;
+  using JointRow = Eigen::Matrix<Scalar, KJ, 1, Eigen::ColMajor, MaxKJ, 1>;
+  static constexpr int kBlock = 64;
+  using JointBlock = Eigen::Matrix<Scalar, Eigen::Dynamic, KJ, Eigen::ColMajor, kBlock, MaxKJ>;
+  using BlockColumn = Eigen::Matrix<Scalar, Eigen::Dynamic, 1, Eigen::ColMajor, kBlock, 1>;
+  using ExtraMatrix = Eigen::Matrix<Scalar, K, MX, Eigen::ColMajor, MaxK, MX>;
+  using ExtraVector = Eigen::Matrix<Scalar, MX, 1>;
+  using Matrix = typename Estimator::Matrix;
+
+ public:
+  /// Fixed K and M. status() reports bad sizes or options.
+  explicit MultiResponse(const Options& options = Options())
+      : MultiResponse(K == Eigen::Dynamic ? 0 : K, M == Eigen::Dynamic ? 0 : M, options) {}
+  /// Runtime K and M (each must equal its compile-time value when that is fixed, else status()
+  /// is `wrong_size`). Allocates for Eigen::Dynamic sizes, nothing later.
+  MultiResponse(Eigen::Index k, Eigen::Index m, const Options& options)
+      : m_k(k),
+        m_m(m),
+        m_joint(KJ == Eigen::Dynamic ? (jointSize(k, m) > 0 ? jointSize(k, m) : 0) : KJ, unguarded(options)),
+        m_view(dimK(k), unguarded(options)),
+        m_row(dimJ(k, m)),
+        m_blockX(kForm == 0 ? kBlock : 0, dimJ(k, m)),
+        m_blockY(kForm == 0 ? kBlock : 0),
+        m_blockW(kForm == 0 ? kBlock : 0),
+        m_theta(dimK(k), dimX(m)),
+        m_sse(dimX(m)),
+        m_ybar(dimX(m)),
+        m_syy(dimX(m)),
+        m_eta(dimX(m)),
+        m_phi(dimK(k)),
+        m_gram(dimK(k), dimK(k)),
+        m_chol(dimK(k), dimK(k)),
+        m_z(dimK(k)),
+        m_solution(dimK(k)) {
+    if (k <= 0 || m <= 0 || (K != Eigen::Dynamic && k != K) || (M != Eigen::Dynamic && m != M))
+      m_status = Status::wrong_size;
+    else if (m_joint.status() != Status::ok)
+      m_status = m_joint.status();
+    else if (options.outliers.enabled || (options.forgetting < 1.0 && options.windup.enabled))
+      m_status = Status::invalid_options;
+    clearExtras();
+  }
+
+  /// `ok`, `wrong_size` (k or m not positive, or not the compile-time value), the single-response
+  /// estimator's own option status, or `invalid_options` (guards requested; class comment).
+  /// Anything but `ok` makes add refuse every sample of positive weight. O(1).
+  Status status() const { return m_status; }
+  /// Number of regressors K.
+  Eigen::Index regressors() const { return m_k; }
+  /// Number of responses M.
+  Eigen::Index responses() const { return m_m; }
+  /// Accepted samples (weight > 0).
+  std::uint64_t count() const { return m_joint.count(); }
+  /// Sum of forgotten sample weights W.
+  Scalar weightSum() const { return m_joint.weightSum(); }
+  /// Effective sample size F^2/F2 (= count when lambda = 1).
+  Scalar effectiveCount() const { return m_joint.effectiveCount(); }
+
+  /// Folds one sample: K regressors x and M responses y, weight w >= 0 (0: accepted, nothing
+  /// folded). Returns, checked in this order before anything is written: status() if it is not
+  /// `ok`; `wrong_size` (x.size() != K or y.size() != M); `negative_weight` (w < 0, NaN, Inf);
+  /// `nonfinite_input` (NaN or Inf in x or y); `ok` for w == 0; `capacity_full` (a full
+  /// non-sliding BatchQr); otherwise `ok`. Cost: see the class comment. Never allocates.
+  template <typename XD, typename YD>
+  Status add(const Eigen::MatrixBase<XD>& x, const Eigen::MatrixBase<YD>& y, Scalar w = Scalar(1)) {
+    static_assert(std::is_same<typename XD::Scalar, Scalar>::value, "rowfold: x must have the estimator's Scalar");
+    static_assert(std::is_same<typename YD::Scalar, Scalar>::value, "rowfold: y must have the estimator's Scalar");
+    const Status s = check(x, y, w);
+    if (s != Status::ok || w == Scalar(0)) return s;
+    if constexpr (kForm == 2) {
+      foldShared(x, y, w, Scalar(-1), 0);
+      return Status::ok;
+    } else {
+      stackRow(x, y);
+      return m_joint.add(m_row, y(m_m - 1), w);
+    }
+  }
+
+  /// Folds a sample measured `age` steps ago with weight w lambda^age, without aging the state
+  /// (EstimatorBase::addDelayed). Returns as add(), then `not_available` for BatchQr under
+  /// forgetting (ages are row positions). Never allocates.
+  template <typename XD, typename YD>
+  Status addDelayed(const Eigen::MatrixBase<XD>& x, const Eigen::MatrixBase<YD>& y, std::uint64_t age,
+                    Scalar w = Scalar(1)) {
+    static_assert(std::is_same<typename XD::Scalar, Scalar>::value, "rowfold: x must have the estimator's Scalar");
+    static_assert(std::is_same<typename YD::Scalar, Scalar>::value, "rowfold: y must have the estimator's Scalar");
+    const Status s = check(x, y, w);
+    if (s != Status::ok || w == Scalar(0)) return s;
+    if constexpr (kForm == 2) {
+      const Scalar aged = Centering<Scalar, K, MaxK>::agingFactor(lambda(), age);
+      if (!(aged > Scalar(0))) return Status::ok;
+      foldShared(x, y, w, aged, age);
+      return Status::ok;
+    } else {
+      stackRow(x, y);
+      return m_joint.addDelayed(m_row, y(m_m - 1), age, w);
+    }
+  }
+
+  /// Folds the rows of X (n x K) with responses Y (n x M), optionally weighted by w (n).
+  /// All-or-nothing: every row is validated first; on any reject nothing is folded and the
+  /// first reject's Status (in row order, as add() gives it) is returned; `wrong_size` for
+  /// mismatched shapes; `capacity_full` when fewer than n rows fit (BatchQr). GivensQr and
+  /// NormalEquations fold in blocks (their blocked addRows). Never allocates.
+  template <typename XD, typename YD>
+  Status addRows(const Eigen::MatrixBase<XD>& X, const Eigen::MatrixBase<YD>& Y) {
+    return addRowsImpl(X, Y, static_cast<const BlockColumn*>(nullptr));
+  }
+  /// Weighted form of addRows (w has n entries, each >= 0 and finite).
+  template <typename XD, typename YD, typename WD>
+  Status addRows(const Eigen::MatrixBase<XD>& X, const Eigen::MatrixBase<YD>& Y, const Eigen::MatrixBase<WD>& w) {
+    return addRowsImpl(X, Y, &w);
+  }
+
+  /// Marks `steps` sampling steps without a sample: the state is aged by lambda^steps
+  /// (EstimatorBase::advance). Returns status() if not `ok`, `not_available` (BatchQr under
+  /// forgetting, non-empty), else `ok`.
+  Status advance(std::uint64_t steps = 1) {
+    if (m_status != Status::ok) return m_status;
+    const Status s = m_joint.advance(steps);
+    if constexpr (kForm == 2) {
+      if (s == Status::ok && lambda() != Scalar(1) && steps != 0 && count() != 0)
+        ageExtras(Centering<Scalar, K, MaxK>::agingFactor(lambda(), steps));
+    }
+    return s;
+  }
+
+  /// Multiplies the remembered information by f in (0, 1] (EstimatorBase::relax). Returns
+  /// status() if not `ok`, `invalid_options` for f outside (0, 1], else `ok`.
+  Status relax(Scalar f) {
+    if (m_status != Status::ok) return m_status;
+    const Status s = m_joint.relax(f);
+    if constexpr (kForm == 2) {
+      if (s == Status::ok && count() != 0 && f != Scalar(1)) ageExtras(f);
+    }
+    return s;
+  }
+
+  /// Merges `other` (same K, M and options) into this state as if its samples had followed
+  /// (EstimatorBase::merge). Returns status() if not `ok`; `state_mismatch` (other not `ok`,
+  /// itself, or other sizes or options); `not_available` for ForgettingRls; BatchQr's
+  /// `capacity_full`; else `ok`. On any status but `ok` nothing changes.
+  Status merge(const MultiResponse& other) {
+    if (m_status != Status::ok) return m_status;
+    if (other.m_status != Status::ok || &other == this || other.m_k != m_k || other.m_m != m_m)
+      return Status::state_mismatch;
+    if constexpr (kForm == 2) {
+      return Status::not_available;
+    } else {
+      return m_joint.merge(other.m_joint);
+    }
+  }
+
+  /// Back to the empty state. O(size of the state).
+  void reset() {
+    m_joint.reset();
+    clearExtras();
+  }
+
+  /// Response j (0-based) as a single-response estimator: the state an estimator of type
+  /// Single fed (x, y_j) would hold, formed on this call (cost in the class comment). The
+  /// reference stays valid until the next call of response() or a query of this object. For
+  /// j outside [0, M) or a bad status(): an empty estimator. Never allocates.
+  const Estimator& response(Eigen::Index j) const {
+    if (m_status != Status::ok || j < 0 || j >= m_m) {
+      m_view.reset();
+      return m_view;
+    }
+    return viewOf(j, true);
+  }
+
+  /// Slopes (K x M, one column per response) and intercepts (M) of every response: one
+  /// response view after the other (the shared factor formed once for GivensQr). Returns
+  /// `empty`, `wrong_size` (B or b0 of the wrong size: resize them first), `not_available`
+  /// (some response has no finite solution: its column is zero), or `ok`; `flags` collects
+  /// every response's flags. Never allocates.
+  template <typename BD, typename VD>
+  Status solveInto(Eigen::MatrixBase<BD>& B, Eigen::MatrixBase<VD>& b0, Flags& flags) const {
+    flags = Flags();
+    if (B.rows() != m_k || B.cols() != m_m || b0.size() != m_m) return Status::wrong_size;
+    B.setZero();
+    b0.setZero();
+    if (m_status != Status::ok || count() == 0) return Status::empty;
+    Status result = Status::ok;
+    for (Eigen::Index j = 0; j < m_m; ++j) {
+      const Status s = viewOf(j, j == 0).solveInto(m_solution);
+      flags.set(m_solution.flags);
+      if (s != Status::ok) {
+        result = Status::not_available;
+        continue;
+      }
+      B.col(j) = m_solution.coefficients;
+      b0(j) = m_solution.intercept;
+    }
+    return result;
+  }
+
+  /// Predicted responses b0 + B'x0 into `yhat` (M). Returns `wrong_size`, `empty`,
+  /// `not_available` (then yhat is NaN) or `ok`. Never allocates.
+  template <typename XD, typename VD>
+  Status predict(const Eigen::MatrixBase<XD>& x0, Eigen::MatrixBase<VD>& yhat) const {
+    if (x0.size() != m_k || yhat.size() != m_m) return Status::wrong_size;
+    yhat.setConstant(std::numeric_limits<Scalar>::quiet_NaN());
+    if (m_status != Status::ok || count() == 0) return Status::empty;
+    for (Eigen::Index j = 0; j < m_m; ++j) {
+      if (viewOf(j, j == 0).solveInto(m_solution) != Status::ok) return Status::not_available;
+      yhat(j) = m_solution.intercept + x0.dot(m_solution.coefficients);
+    }
+    return Status::ok;
+  }
+
+  /// Bytes of a snapshot image: a 20-byte header (magic "RFMR", format version, estimator kind,
+  /// Scalar size, K, M, inner image length), the image of the inner single-response state
+  /// (EstimatorBase::snapshot), ForgettingRls's per-response parts, and a CRC-32.
+  std::size_t snapshotSize() const { return kHeader + m_joint.snapshotSize() + extrasBytes() + 4; }
+
+  /// Writes the state into `buffer`; `written` receives the size. Returns `buffer_too_small`
+  /// (nothing written) or `ok`. Never allocates.
+  Status snapshot(unsigned char* buffer, std::size_t capacity, std::size_t& written) const {
+    written = 0;
+    const std::size_t inner = m_joint.snapshotSize(), size = kHeader + inner + extrasBytes() + 4;
+    if (buffer == nullptr || capacity < size) return Status::buffer_too_small;
+    writeHeader(buffer, inner);
+    std::size_t innerWritten = 0;
+    const Status s = m_joint.snapshot(buffer + kHeader, inner, innerWritten);
+    if (s != Status::ok) return s;
+    if constexpr (kForm == 2) {
+      detail::ImageWriter w{buffer + kHeader + inner};
+      visitExtras(*this, w);
+    }
+    detail::putField(buffer + size - 4, detail::crc32(buffer, size - 4));
+    written = size;
+    return Status::ok;
+  }
+
+  /// Restores a snapshot image. Returns status() if not `ok`; `corrupt_image` (bad magic,
+  /// length or CRC); `image_mismatch` (another kind, Scalar, K, M, options or format version);
+  /// the inner estimator's restore status; else `ok`. On any status but `ok` the state is
+  /// unchanged. Never allocates.
+  Status restore(const unsigned char* image, std::size_t length) {
+    using detail::getField;
+    if (m_status != Status::ok) return m_status;
+    if (image == nullptr || length < kHeader + 4 || std::memcmp(image, "RFMR", 4) != 0) return Status::corrupt_image;
+    const std::uint32_t inner = getField<std::uint32_t>(image + 16);
+    if (static_cast<std::size_t>(inner) + kHeader + extrasBytes() + 4 != length) return Status::corrupt_image;
+    if (detail::crc32(image, length - 4) != getField<std::uint32_t>(image + length - 4)) return Status::corrupt_image;
+    unsigned char expect[kHeader];
+    writeHeader(expect, inner);
+    if (std::memcmp(expect, image, kHeader) != 0) return Status::image_mismatch;
+    const Status s = m_joint.restore(image + kHeader, inner);
+    if (s != Status::ok) return s;
+    if constexpr (kForm == 2) {
+      detail::ImageReader r{image + kHeader + inner};
+      visitExtras(*this, r);
+    }
+    return Status::ok;
+  }
+
+ private:
+  static constexpr std::size_t kHeader = 20;
+  static constexpr std::uint16_t kFormat = 1;
+
+  static Eigen::Index jointSize(Eigen::Index k, Eigen::Index m) { return kForm == 2 ? k : k + m - 1; }
+  // Storage sizes: the compile-time size when there is one (a bad runtime size only sets status()).
+  static Eigen::Index dimK(Eigen::Index k) { return K != Eigen::Dynamic ? K : (k > 0 ? k : 1); }
+  static Eigen::Index dimJ(Eigen::Index k, Eigen::Index m) {
+    return KJ != Eigen::Dynamic ? KJ : (jointSize(k, m) > 0 ? jointSize(k, m) : 1);
+  }
+  static Eigen::Index dimX(Eigen::Index m) { return MX != Eigen::Dynamic ? MX : (kForm == 2 && m > 1 ? m - 1 : 0); }
+  static Options unguarded(Options o) {
+    o.windup.enabled = false;
+    o.outliers.enabled = false;
+    return o;
+  }
+  Scalar lambda() const { return static_cast<Scalar>(m_joint.fitOptions().forgetting); }
+
+  template <typename XD, typename YD>
+  Status check(const Eigen::MatrixBase<XD>& x, const Eigen::MatrixBase<YD>& y, Scalar w) const {
+    if (m_status != Status::ok) return m_status;
+    if (x.size() != m_k || y.size() != m_m) return Status::wrong_size;
+    if (!(w >= Scalar(0)) || !std::isfinite(w)) return Status::negative_weight;
+    if (!x.allFinite() || !y.allFinite()) return Status::nonfinite_input;
+    return Status::ok;
+  }
+
+  template <typename XD, typename YD>
+  void stackRow(const Eigen::MatrixBase<XD>& x, const Eigen::MatrixBase<YD>& y) {
+    m_row.head(m_k) = x;
+    for (Eigen::Index j = 0; j + 1 < m_m; ++j) m_row(m_k + j) = y(j);
+  }
+
+  template <typename XD, typename YD, typename WD>
+  Status addRowsImpl(const Eigen::MatrixBase<XD>& X, const Eigen::MatrixBase<YD>& Y, const WD* w) {
+    static_assert(std::is_same<typename XD::Scalar, Scalar>::value, "rowfold: X must have the estimator's Scalar");
+    if (m_status != Status::ok) return m_status;
+    const Eigen::Index n = X.rows();
+    if (X.cols() != m_k || Y.cols() != m_m || Y.rows() != n || (w != nullptr && w->size() != n))
+      return Status::wrong_size;
+    for (Eigen::Index i = 0; i < n; ++i) {
+      const Scalar wi = w != nullptr ? Scalar((*w)(i)) : Scalar(1);
+      const Status s = check(X.row(i), Y.row(i), wi);
+      if (s != Status::ok) return s;
+    }
+    if constexpr (kForm == 1) {
+      if (m_joint.room() < static_cast<std::uint64_t>(n)) return Status::capacity_full;
+    }
+    if constexpr (kForm == 0) {
+      // Blocks of up to kBlock stacked rows through the joint estimator's blocked addRows.
+      for (Eigen::Index i0 = 0; i0 < n; i0 += kBlock) {
+        const Eigen::Index nb = n - i0 < kBlock ? n - i0 : kBlock;
+        for (Eigen::Index r = 0; r < nb; ++r) {
+          m_blockX.row(r).head(m_k) = X.row(i0 + r);
+          m_blockX.row(r).tail(m_m - 1) = Y.row(i0 + r).head(m_m - 1);
+          m_blockY(r) = Y(i0 + r, m_m - 1);
+          m_blockW(r) = w != nullptr ? Scalar((*w)(i0 + r)) : Scalar(1);
+        }
+        m_joint.addRows(m_blockX.topRows(nb), m_blockY.head(nb), m_blockW.head(nb));
+      }
+    } else {
+      for (Eigen::Index i = 0; i < n; ++i) {
+        const Scalar wi = w != nullptr ? Scalar((*w)(i)) : Scalar(1);
+        if (wi != Scalar(0)) add(X.row(i).transpose(), Y.row(i).transpose(), wi);
+      }
+    }
+    return Status::ok;
+  }
+
+  // ----- shared gain (ForgettingRls) -----
+
+  void clearExtras() {
+    m_theta.setZero();
+    m_sse.setZero();
+    m_ybar.setZero();
+    m_syy.setZero();
+  }
+
+  void ageExtras(Scalar f) {
+    if (m_joint.m_recursive)
+      m_sse *= f;
+    else
+      m_theta *= f;
+    m_syy *= f;
+  }
+
+  /// One sample through the lead recursion (response 1) and the extra responses. `aged` < 0: a
+  /// sample of this step (centered as Centering::centeredRow, weight delta, forgetting lambda);
+  /// otherwise a delayed one of weight w = w0 lambda^age (as EstimatorBase::foldAged: a scaled
+  /// row of weight 1, no forgetting). `w0` is the sample's weight, `age` its delay.
+  template <typename XD, typename YD>
+  void foldShared(const Eigen::MatrixBase<XD>& x, const Eigen::MatrixBase<YD>& y, Scalar w0, Scalar aged,
+                  std::uint64_t age) {
+    const auto& c = m_joint.centering();
+    const bool delayed = aged > Scalar(0);
+    const Scalar w = delayed ? w0 * aged : w0;
+    const bool centered = m_joint.fitOptions().intercept == Intercept::fit;
+    const Scalar lam = delayed ? Scalar(1) : lambda();
+    const Scalar before = lam * c.weightSum(), wNew = before + w;
+    Scalar delta = centered ? w * (before / wNew) : w, share = centered ? w / wNew : Scalar(0);
+    if (centered) {
+      m_phi = x - c.xMean();
+      m_eta = y.tail(m_m - 1) - m_ybar;
+    } else {
+      m_phi = x;
+      m_eta = y.tail(m_m - 1);
+    }
+    if (delayed) {  // the scaled row c [d, e] with weight 1 (Centering::scaledRow)
+      const Scalar s = std::sqrt(delta);
+      m_phi *= s;
+      m_eta *= s;
+      delta = Scalar(1);
+    }
+    const bool wasRecursive = m_joint.m_recursive;
+    if (!wasRecursive) m_gram = m_joint.m_P;  // co-moments before this sample (lower triangle)
+    if (delayed)
+      m_joint.addDelayed(x, Scalar(y(0)), age, w0);
+    else
+      m_joint.add(x, Scalar(y(0)), w0);
+    foldExtras(delta, lam, wasRecursive);
+    if (delayed) {
+      // Centering::commit with weight w and lambda 1: ybar += (w/W') (y - ybar), Syy += (c e)^2.
+      if (centered) m_ybar += share * (y.tail(m_m - 1) - m_ybar);
+      m_syy += m_eta.cwiseAbs2();
+    } else {
+      if (centered) m_ybar += share * m_eta;
+      m_syy = lam * m_syy + delta * m_eta.cwiseAbs2();
+    }
+  }
+
+  /// The extra responses' part of ForgettingRls::foldRow (its class comment): with the lead's
+  /// gain g = P phi (computed before P changed), alpha = lambda + delta phi'g, kappa =
+  /// delta/alpha: theta_j += kappa e_j g, SSE_j = lambda (SSE_j + kappa e_j^2). Before the start,
+  /// the co-moments m_j = lambda m_j + delta eta_j phi; at the start theta_j = M^-1 m_j from
+  /// the Cholesky factor of the same co-moments the lead factored.
+  void foldExtras(Scalar delta, Scalar lam, bool wasRecursive) {
+    const Eigen::Index k = m_k;
+    if (wasRecursive) {
+      const Scalar alpha = lam + delta * m_phi.dot(m_joint.m_gain);
+      if (!(alpha > Scalar(0)) || !std::isfinite(alpha)) return;  // the lead refused the row too
+      const Scalar kappa = delta / alpha;
+      for (Eigen::Index j = 0; j < m_m - 1; ++j) {
+        const Scalar e = m_eta(j) - m_phi.dot(m_theta.col(j));
+        m_theta.col(j) += (kappa * e) * m_joint.m_gain;
+        m_sse(j) = lam * (m_sse(j) + kappa * e * e);
+      }
+      return;
+    }
+    if (lam != Scalar(1)) m_theta *= lam;
+    for (Eigen::Index j = 0; j < m_m - 1; ++j) m_theta.col(j) += (delta * m_eta(j)) * m_phi;
+    if (!m_joint.m_recursive) return;
+    // The lead started on this sample: the same co-moments, the same factor.
+    if (lam != Scalar(1)) m_gram.template triangularView<Eigen::Lower>() *= lam;
+    for (Eigen::Index c = 0; c < k; ++c) {
+      const Scalar a = delta * m_phi(c);
+      for (Eigen::Index i = c; i < k; ++i) m_gram(i, c) += a * m_phi(i);
+    }
+    const Scalar tol = Scalar(4) * Scalar(k + 1) * std::numeric_limits<Scalar>::epsilon();
+    detail::semidefiniteCholesky(m_gram, m_chol, tol, false);
+    for (Eigen::Index j = 0; j < m_m - 1; ++j) {
+      m_z = m_theta.col(j);
+      detail::forwardSubstituteTransposed(m_chol, m_z);  // z = R^-T m
+      const Scalar sse = lam * m_syy(j) + delta * m_eta(j) * m_eta(j) - m_z.squaredNorm();
+      m_sse(j) = sse > Scalar(0) ? sse : Scalar(0);
+      detail::backSubstitute(m_chol, m_z, k);
+      m_theta.col(j) = m_z;
+    }
+  }
+
+  std::size_t extrasBytes() const {
+    if constexpr (kForm != 2) {
+      return 0;
+    } else {
+      detail::ImageCounter c;
+      visitExtras(*this, c);
+      return c.bytes;
+    }
+  }
+  template <typename Self, typename V>
+  static void visitExtras(Self& self, V& v) {
+    v.array(self.m_theta.data(), static_cast<std::size_t>(self.m_theta.size()));
+    v.array(self.m_sse.data(), static_cast<std::size_t>(self.m_sse.size()));
+    v.array(self.m_ybar.data(), static_cast<std::size_t>(self.m_ybar.size()));
+    v.array(self.m_syy.data(), static_cast<std::size_t>(self.m_syy.size()));
+  }
+
+  void writeHeader(unsigned char* h, std::size_t inner) const {
+    std::memset(h, 0, kHeader);
+    const unsigned char magic[4] = {'R', 'F', 'M', 'R'};
+    std::memcpy(h, magic, sizeof magic);
+    detail::putField(h + 4, kFormat);
+    h[6] = static_cast<unsigned char>(Estimator::kind);
+    h[7] = static_cast<unsigned char>(sizeof(Scalar));
+    detail::putField(h + 8, static_cast<std::uint32_t>(m_k));
+    detail::putField(h + 12, static_cast<std::uint32_t>(m_m));
+    detail::putField(h + 16, static_cast<std::uint32_t>(inner));
+  }
+
+  // ----- response views -----
+
+  /// Copies the joint centering record into the view for response j (ybar_j, Syy_j given).
+  void viewCentering(Scalar ybar, Scalar syy) const {
+    const auto& c = m_joint.centering();
+    auto& v = m_view.m_centering;
+    v.m_xbar = c.xMean().head(m_k);
+    v.m_ybar = ybar;
+    v.m_weight = c.weightSum();
+    v.m_forget = c.forgetSum();
+    v.m_forget2 = c.forgetSum2();
+    v.m_syy = syy;
+    v.m_count = c.count();
+  }
+
+  /// The view of response j (the lead itself for ForgettingRls's first response); `fresh`:
+  /// form GivensQr's joint factor first (false when it was formed for a previous response).
+  const Estimator& viewOf(Eigen::Index j, bool fresh) const {
+    if constexpr (kForm == 2) {
+      if (j == 0) return m_joint;
+    }
+    formView(j, fresh);
+    return m_view;
+  }
+
+  /// Forms the view of response j (see response()); `fresh`: form GivensQr's joint factor.
+  void formView(Eigen::Index j, bool fresh) const {
+    const Eigen::Index k = m_k;
+    const auto& c = m_joint.centering();
+    const bool last = j == m_m - 1;
+    m_view.reset();
+    if constexpr (std::is_same<Joint, GivensQr<Scalar, KJ, MaxKJ>>::value) {
+      if (fresh) m_joint.formFactor();
+      const auto& F = m_joint.m_factor;  // [R Z; 0 T], (K+M) x (K+M)
+      auto& f = m_view.m_factor;
+      f.setZero();
+      f.topLeftCorner(k, k) = F.topLeftCorner(k, k).template triangularView<Eigen::Upper>();
+      f.col(k).head(k) = F.col(k + j).head(k);
+      f(k, k) = F.col(k + j).segment(k, j + 1).norm();  // rho_j = |T(:, j)|
+      m_view.takeFactor();
+      viewCentering(last ? c.yMean() : c.xMean()(k + j), last ? c.yySum() : F.col(k + j).head(k + j + 1).squaredNorm());
+    } else if constexpr (std::is_same<Joint, NormalEquations<Scalar, KJ, MaxKJ>>::value) {
+      const auto& G = m_joint.m_gram;  // lower triangle of the (K+M) x (K+M) co-moments
+      auto& g = m_view.m_gram;
+      g.setZero();
+      g.topLeftCorner(k, k).template triangularView<Eigen::Lower>() =
+          G.topLeftCorner(k, k).template triangularView<Eigen::Lower>();
+      g.row(k).head(k) = G.row(k + j).head(k);
+      g(k, k) = G(k + j, k + j);
+      viewCentering(last ? c.yMean() : c.xMean()(k + j), last ? c.yySum() : G(k + j, k + j));
+    } else if constexpr (kForm == 1) {
+      // Copy response j's rows into the view, oldest first (same positions, same ages).
+      const Eigen::Index n = m_joint.m_n;
+      for (Eigen::Index i = 0; i < n; ++i) {
+        const Eigen::Index s = m_joint.slot(i);
+        m_view.m_x.row(i) = m_joint.m_x.row(s).head(k);
+        m_view.m_y(i) = last ? m_joint.m_y(s) : m_joint.m_x(s, k + j);
+        m_view.m_w(i) = m_joint.m_w(s);
+      }
+      m_view.m_n = n;
+      m_view.m_head = 0;
+      viewCentering(last ? c.yMean() : c.xMean()(k + j), Scalar(0));
+    } else {
+      m_view = m_joint;  // P, the lead's flags and centering; then response j's own parts
+      m_view.m_theta = m_theta.col(j - 1);
+      m_view.m_sse = m_sse(j - 1);
+      m_view.m_centering.m_ybar = m_ybar(j - 1);
+      m_view.m_centering.m_syy = m_syy(j - 1);
+    }
+  }
+
+  Eigen::Index m_k, m_m;
+  Status m_status = Status::ok;
+  Joint m_joint;
+  mutable Estimator m_view;
+  JointRow m_row;
+  JointBlock m_blockX;
+  BlockColumn m_blockY, m_blockW;
+  // Shared gain only: the extra responses' slopes (co-moments before the start), residual sums,
+  // means and centered sums of squares, and scratch.
+  ExtraMatrix m_theta;
+  ExtraVector m_sse, m_ybar, m_syy, m_eta;
+  Vector m_phi;
+  Matrix m_gram, m_chol;
+  Vector m_z;
+  mutable typename Estimator::SolutionType m_solution;
+};
+
+}  // namespace rowfold

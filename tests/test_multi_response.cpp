@@ -1,0 +1,420 @@
+// Several responses on one set of regressors (MultiResponse).
+// References:
+//  - NIST StRD Wampler1-5 (certified values, tests/data/nist/SOURCE.md): the five sets share
+//    one design (x = 0..20, a degree-5 polynomial) and differ in y only, so one multi-response
+//    fit carries all five; each response is scored against its own certified values by LRE
+//    (McCullough 1998) with the thresholds of tests/test_nist.cpp.
+//  - The single-response estimators of this library fed (x, y_j) (NIST-checked in
+//    tests/test_nist.cpp) for what NIST does not cover: forgetting, late samples, relaxing.
+// The allocation fence goes first (it replaces operator new for this executable).
+#include "support/alloc_fence.hpp"
+
+#include <doctest/doctest.h>
+
+#include <algorithm>
+#include <ostream>
+#include <cmath>
+#include <random>
+#include <string>
+#include <vector>
+
+#include "rowfold/rowfold.hpp"
+#include "support/doctest_rowfold.hpp"
+#include "support/nist.hpp"
+
+namespace {
+
+using rowfold::Flag;
+using rowfold::Status;
+using rowfold_test::lre;
+constexpr int Dyn = Eigen::Dynamic;
+
+template <typename S, int K, int M>
+using BatchQrD = rowfold::BatchQr<S, K, Eigen::Dynamic, M>;
+
+template <typename Est>
+std::vector<unsigned char> image(const Est& e) {
+  std::vector<unsigned char> buf(e.snapshotSize());
+  std::size_t n = 0;
+  REQUIRE(e.snapshot(buf.data(), buf.size(), n) == Status::ok);
+  REQUIRE(n == buf.size());
+  return buf;
+}
+
+// Minimum beta LRE per Wampler set (1..5) and estimator: tests/test_nist.cpp's kDouble rows.
+struct Limits {
+  double batch, givens, normal, rls;
+};
+const Limits kWampler[] = {{13.5, 9, 6.5, 9.4}, {13, 12.5, 9.3, 12.5}, {13, 9, 6.3, 5.6}, {13, 8, 6.2, 3.6}, {13, 6, 5.6, 1.6}};
+
+double limitFor(const Limits& l, const std::string& est) {
+  if (est == "BatchQr") return l.batch;
+  if (est == "GivensQr") return l.givens;
+  if (est == "NormalEquations") return l.normal;
+  return l.rls;
+}
+
+struct Wampler {
+  std::vector<rowfold_test::NistDataset> sets;
+  Wampler() {
+    for (int i = 1; i <= 5; ++i) sets.push_back(rowfold_test::loadNist("Wampler" + std::to_string(i)));
+    // The premise: one design for all five (same x tokens, same degree).
+    for (const auto& s : sets) {
+      REQUIRE(s.xText == sets[0].xText);
+      REQUIRE(s.degree == sets[0].degree);
+      REQUIRE(s.intercept);
+    }
+  }
+  Eigen::Index k() const { return static_cast<Eigen::Index>(rowfold_test::numRegressors(sets[0])); }
+  std::size_t n() const { return sets[0].observations(); }
+  template <typename S>
+  void fill(Eigen::Matrix<S, Dyn, Dyn>& X, Eigen::Matrix<S, Dyn, Dyn>& Y) const {
+    X.resize(static_cast<Eigen::Index>(n()), k());
+    Y.resize(static_cast<Eigen::Index>(n()), 5);
+    Eigen::Matrix<S, Dyn, 1> x(k());
+    for (std::size_t i = 0; i < n(); ++i) {
+      for (int j = 0; j < 5; ++j) {
+        S y;
+        rowfold_test::designRow<S>(sets[static_cast<std::size_t>(j)], i, x.data(), y);
+        Y(static_cast<Eigen::Index>(i), j) = y;
+      }
+      X.row(static_cast<Eigen::Index>(i)) = x.transpose();
+    }
+  }
+};
+
+struct Score {
+  double beta, sd, resSd;
+  bool operator>=(double limit) const { return beta >= limit; }  // the beta threshold
+};
+std::ostream& operator<<(std::ostream& os, const Score& s) { return os << "beta LRE " << s.beta; }
+
+// Scores response j of a fit against set j (minimum LRE over the coefficients and their SDs).
+template <typename Multi>
+Score scoreResponse(const Multi& fit, const rowfold_test::NistDataset& ds, Eigen::Index j, const std::string& est) {
+  const auto sum = fit.response(j).summarize();
+  double beta = lre(sum.intercept, ds.coef[0]), sd = lre(sum.interceptStandardError, ds.coefSd[0]);
+  for (Eigen::Index c = 0; c < fit.regressors(); ++c) {
+    beta = std::min(beta, lre(sum.coefficients(c), ds.coef[static_cast<std::size_t>(c) + 1]));
+    sd = std::min(sd, lre(sum.standardErrors(c), ds.coefSd[static_cast<std::size_t>(c) + 1]));
+  }
+  MESSAGE(ds.name << " " << est << ": beta LRE " << beta << ", sd LRE " << sd << ", resSd LRE "
+                  << lre(sum.residualStandardError, ds.residualSd) << ", R2 LRE " << lre(sum.rSquared, ds.rSquared));
+  // No silent failure (as tests/test_nist.cpp): a low LRE must come with a conditioning flag.
+  if (beta < 4.0) CHECK((sum.flags.has(Flag::near_singular) || sum.flags.has(Flag::ill_conditioned)));
+  CHECK(sum.count == fit.count());
+  return Score{beta, sd, lre(sum.residualStandardError, ds.residualSd)};
+}
+
+template <template <typename, int, int> class Est, typename S>
+void wamplerCase(const Wampler& w, const std::string& est) {
+  using Multi = rowfold::MultiResponse<Est<S, Dyn, Dyn>, Dyn>;
+  typename Multi::Options o;
+  if constexpr (std::is_same<typename Multi::Options, rowfold::BatchQrOptions>::value) o.capacity = 64;
+  Eigen::Matrix<S, Dyn, Dyn> X, Y;
+  w.fill(X, Y);
+  Multi one(w.k(), 5, o);
+  REQUIRE(one.status() == Status::ok);
+  for (Eigen::Index i = 0; i < X.rows(); ++i) REQUIRE(one.add(X.row(i).transpose(), Y.row(i).transpose()) == Status::ok);
+  for (Eigen::Index j = 0; j < 5; ++j) {
+    CAPTURE(j);
+    const Score s = scoreResponse(one, w.sets[static_cast<std::size_t>(j)], j, est);
+    CHECK(s >= limitFor(kWampler[j], est));
+    if (est == "BatchQr" || est == "GivensQr") {  // certified SDs to >= 10 digits, as tests/test_nist.cpp
+      CHECK(s.sd >= 10);
+      CHECK(s.resSd >= 10);
+    }
+  }
+  // The same rows in blocks (addRows), and as two states merged (ForgettingRls cannot merge).
+  Multi rows(w.k(), 5, o);
+  REQUIRE(rows.addRows(X, Y) == Status::ok);
+  Multi a(w.k(), 5, o), b(w.k(), 5, o);
+  REQUIRE(a.addRows(X.topRows(9), Y.topRows(9)) == Status::ok);
+  REQUIRE(b.addRows(X.bottomRows(12), Y.bottomRows(12)) == Status::ok);
+  const Status merged = a.merge(b);
+  if (est == "ForgettingRls") {
+    CHECK(merged == Status::not_available);
+  } else {
+    REQUIRE(merged == Status::ok);
+    REQUIRE(a.count() == 21);
+  }
+  // Blocked and merged folding sum in another order: the sequential thresholds less one digit,
+  // as tests/test_merge.cpp applies them to merged single-response states.
+  for (Eigen::Index j = 0; j < 5; ++j) {
+    CAPTURE(j);
+    const double limit = limitFor(kWampler[j], est) - 1.0;
+    CHECK(scoreResponse(rows, w.sets[static_cast<std::size_t>(j)], j, est + " addRows") >= limit);
+    if (merged == Status::ok) CHECK(scoreResponse(a, w.sets[static_cast<std::size_t>(j)], j, est + " merged") >= limit);
+  }
+}
+
+}  // namespace
+
+TEST_CASE_TEMPLATE("NIST Wampler1-5 as five responses of one fit: every response meets its set's thresholds", S,
+                   double, long double) {
+  const Wampler w;
+  wamplerCase<BatchQrD, S>(w, "BatchQr");
+  wamplerCase<rowfold::GivensQr, S>(w, "GivensQr");
+  wamplerCase<rowfold::NormalEquations, S>(w, "NormalEquations");
+  wamplerCase<rowfold::ForgettingRls, S>(w, "ForgettingRls");
+}
+
+namespace {
+
+// Invented process: 3 inputs, 3 responses with their own slopes and noise; input 3 tracks input
+// 1 closely (collinear), offsets far from zero.
+struct Stream {
+  std::mt19937 gen{20261202u};
+  std::normal_distribution<double> n01{0.0, 1.0};
+  Eigen::Vector3d x() {
+    const double a = n01(gen), b = n01(gen), c = n01(gen);
+    return Eigen::Vector3d(40.0 + a, 7.0 + 2.0 * b, 40.0 + a + 0.05 * c);
+  }
+  Eigen::Vector3d y(const Eigen::Vector3d& x) {
+    const double e1 = n01(gen), e2 = n01(gen), e3 = n01(gen);
+    return Eigen::Vector3d(3.0 + 0.5 * x(0) - 1.0 * x(1) + 0.2 * x(2) + 0.1 * e1, -20.0 + 2.0 * x(1) + 0.3 * e2,
+                           1.0 * x(0) - 0.7 * x(2) + 0.05 * x(1) + 1e-3 * e3);
+  }
+};
+
+// Every response's view against a single-response estimator fed (x, y_j) with the same
+// options: slopes, intercept, SEs, residual SE, R^2 and effective count.
+template <typename Single, typename Multi>
+void compareViews(const Multi& multi, const std::vector<Single>& singles, double tol) {
+  for (Eigen::Index j = 0; j < multi.responses(); ++j) {
+    CAPTURE(j);
+    const auto v = multi.response(j).summarize();
+    const auto s = singles[static_cast<std::size_t>(j)].summarize();
+    REQUIRE(v.status == Status::ok);
+    REQUIRE(s.status == Status::ok);
+    const double scale = 1.0 + s.coefficients.cwiseAbs().maxCoeff();
+    CHECK((v.coefficients - s.coefficients).cwiseAbs().maxCoeff() <= tol * scale);
+    CHECK(std::abs(v.intercept - s.intercept) <= tol * (scale + std::abs(s.intercept)) * 100.0);
+    CHECK((v.standardErrors - s.standardErrors).cwiseAbs().maxCoeff() <= tol * 100.0 * s.standardErrors.maxCoeff());
+    CHECK(std::abs(v.residualStandardError - s.residualStandardError) <= tol * 100.0 * s.residualStandardError);
+    CHECK(std::abs(v.rSquared - s.rSquared) <= tol * 100.0);
+    CHECK(std::abs(v.effectiveCount - s.effectiveCount) <= 1e-9 * s.effectiveCount);
+    CHECK(v.count == s.count);
+  }
+}
+
+template <typename Single>
+void trackCase(typename Single::Options o, double tol) {
+  using Multi = rowfold::MultiResponse<Single, 3>;
+  o.windup.enabled = false;
+  Multi multi(o);
+  REQUIRE(multi.status() == Status::ok);
+  std::vector<Single> singles(3, Single(o));
+  Stream st;
+  const auto feed = [&](int kind, std::uint64_t age) {
+    const Eigen::Vector3d x = st.x(), y = st.y(x);
+    if (kind == 0) {
+      REQUIRE(multi.add(x, y) == Status::ok);
+      for (int j = 0; j < 3; ++j) REQUIRE(singles[static_cast<std::size_t>(j)].add(x, y(j)) == Status::ok);
+    } else {
+      REQUIRE(multi.addDelayed(x, y, age, 0.5) == Status::ok);
+      for (int j = 0; j < 3; ++j) REQUIRE(singles[static_cast<std::size_t>(j)].addDelayed(x, y(j), age, 0.5) == Status::ok);
+    }
+  };
+  for (int i = 0; i < 2; ++i) feed(0, 0);  // before ForgettingRls's exact start
+  feed(1, 1);                              // a late sample before the start
+  for (int i = 0; i < 400; ++i) {
+    feed(i % 7 == 3 ? 1 : 0, static_cast<std::uint64_t>(i % 5));
+    if (i == 150) {
+      REQUIRE(multi.advance(3) == Status::ok);
+      for (auto& s : singles) REQUIRE(s.advance(3) == Status::ok);
+    }
+    if (i == 250) {
+      REQUIRE(multi.relax(0.25) == Status::ok);
+      for (auto& s : singles) REQUIRE(s.relax(0.25) == Status::ok);
+    }
+  }
+  compareViews(multi, singles, tol);
+  // solveInto / predict agree with the views.
+  Eigen::Matrix3d B;
+  Eigen::Vector3d b0, yhat;
+  rowfold::Flags flags;
+  REQUIRE(multi.solveInto(B, b0, flags) == Status::ok);
+  const Eigen::Vector3d x0(41.0, 6.0, 41.2);
+  REQUIRE(multi.predict(x0, yhat) == Status::ok);
+  for (int j = 0; j < 3; ++j) {
+    const auto sol = singles[static_cast<std::size_t>(j)].solve();
+    CHECK((B.col(j) - sol.coefficients).cwiseAbs().maxCoeff() <= tol * (1.0 + sol.coefficients.cwiseAbs().maxCoeff()));
+    CHECK(std::abs(yhat(j) - singles[static_cast<std::size_t>(j)].predict(x0)) <= tol * 1e3);
+  }
+}
+
+}  // namespace
+
+TEST_CASE("Forgetting, late samples, advance and relax: every response equals its own single-response fit") {
+  // Tolerances: the collinear pair gives kappa_s ~ 1e2..1e3; the views differ from the single
+  // fits by the rounding of the shared update only (cross-product forms square kappa).
+  rowfold::GivensQrOptions g;
+  g.forgetting = 0.98;
+  trackCase<rowfold::GivensQr<double, 3>>(g, 1e-9);
+  rowfold::NormalEquationsOptions n;
+  n.forgetting = 0.98;
+  trackCase<rowfold::NormalEquations<double, 3>>(n, 1e-8);
+  rowfold::ForgettingRlsOptions r;
+  r.forgetting = 0.98;
+  trackCase<rowfold::ForgettingRls<double, 3>>(r, 1e-8);
+  r.start = rowfold::RlsStart::prior;
+  r.priorPrecision = 1e-3;
+  trackCase<rowfold::ForgettingRls<double, 3>>(r, 1e-8);
+  rowfold::BatchQrOptions b;
+  b.forgetting = 0.98;
+  b.capacity = 100;
+  b.slide = true;
+  using Batch = rowfold::BatchQr<double, 3>;
+  using MultiB = rowfold::MultiResponse<Batch, 3>;
+  b.windup.enabled = false;
+  MultiB mb(b);
+  std::vector<Batch> sb(3, Batch(b));
+  Stream st;
+  for (int i = 0; i < 250; ++i) {
+    const Eigen::Vector3d x = st.x(), y = st.y(x);
+    REQUIRE(mb.add(x, y) == Status::ok);
+    for (int j = 0; j < 3; ++j) REQUIRE(sb[static_cast<std::size_t>(j)].add(x, y(j)) == Status::ok);
+  }
+  compareViews(mb, sb, 1e-12);  // the same rows, solved the same way
+}
+
+TEST_CASE("Contract: statuses, all-or-nothing, snapshot round trip") {
+  using Multi = rowfold::MultiResponse<rowfold::GivensQr<double, 3>, 2>;
+  Multi fit;
+  REQUIRE(fit.status() == Status::ok);
+  SUBCASE("guards are refused, not silently dropped") {
+    rowfold::GivensQrOptions o;
+    o.forgetting = 0.99;  // windup guard on by default
+    CHECK(Multi(o).status() == Status::invalid_options);
+    o.windup.enabled = false;
+    CHECK(Multi(o).status() == Status::ok);
+    o.outliers.enabled = true;
+    CHECK(Multi(o).status() == Status::invalid_options);
+    CHECK(Multi(o).add(Eigen::Vector3d(1, 2, 3), Eigen::Vector2d(1, 2)) == Status::invalid_options);
+    using DynMulti = rowfold::MultiResponse<rowfold::GivensQr<double, Dyn>, Dyn>;
+    CHECK(DynMulti(3, 0, rowfold::GivensQrOptions()).status() == Status::wrong_size);
+    CHECK(DynMulti(0, 2, rowfold::GivensQrOptions()).status() == Status::wrong_size);
+  }
+  Stream st;
+  for (int i = 0; i < 20; ++i) {
+    const Eigen::Vector3d x = st.x(), y = st.y(x);
+    REQUIRE(fit.add(x, y.head<2>()) == Status::ok);
+  }
+  const auto before = image(fit);
+  SUBCASE("rejected samples leave the image byte-identical") {
+    const double nan = std::numeric_limits<double>::quiet_NaN();
+    CHECK(fit.add(Eigen::Vector3d(1, 2, 3), Eigen::Vector2d(nan, 1)) == Status::nonfinite_input);
+    CHECK(fit.add(Eigen::Vector3d(1, nan, 3), Eigen::Vector2d(1, 1)) == Status::nonfinite_input);
+    CHECK(fit.add(Eigen::Vector3d(1, 2, 3), Eigen::Vector3d(1, 1, 1)) == Status::wrong_size);
+    CHECK(fit.add(Eigen::Vector3d(1, 2, 3), Eigen::Vector2d(1, 1), -1.0) == Status::negative_weight);
+    Eigen::Matrix<double, 4, 3> X = Eigen::Matrix<double, 4, 3>::Ones();
+    Eigen::Matrix<double, 4, 2> Y = Eigen::Matrix<double, 4, 2>::Ones();
+    Y(3, 1) = std::numeric_limits<double>::infinity();
+    CHECK(fit.addRows(X, Y) == Status::nonfinite_input);
+    CHECK(image(fit) == before);
+    CHECK(fit.response(2).count() == 0);  // out of range: an empty view
+  }
+  SUBCASE("snapshot restores the same state; mismatches and corruption are refused") {
+    Multi copy;
+    REQUIRE(copy.restore(before.data(), before.size()) == Status::ok);
+    CHECK(image(copy) == before);
+    const Eigen::Vector3d x = st.x(), y = st.y(x);
+    REQUIRE(fit.add(x, y.head<2>()) == Status::ok);
+    REQUIRE(copy.add(x, y.head<2>()) == Status::ok);
+    CHECK(image(copy) == image(fit));
+    auto bad = before;
+    bad[bad.size() / 2] ^= 1;
+    CHECK(copy.restore(bad.data(), bad.size()) == Status::corrupt_image);
+    // Same joint width K + M - 1 = 4, other split: refused.
+    rowfold::MultiResponse<rowfold::GivensQr<double, 2>, 3> other;
+    CHECK(other.restore(before.data(), before.size()) == Status::image_mismatch);
+    // ForgettingRls carries per-response parts after the inner image.
+    rowfold::ForgettingRlsOptions ro;
+    rowfold::MultiResponse<rowfold::ForgettingRls<double, 3>, 3> r1(ro), r2(ro);
+    for (int i = 0; i < 10; ++i) {
+      const Eigen::Vector3d xr = st.x();
+      REQUIRE(r1.add(xr, st.y(xr)) == Status::ok);
+    }
+    const auto ri = image(r1);
+    REQUIRE(r2.restore(ri.data(), ri.size()) == Status::ok);
+    CHECK(image(r2) == ri);
+    CHECK(r2.response(2).solve().coefficients == r1.response(2).solve().coefficients);
+  }
+  SUBCASE("BatchQr: a batch that does not fit is refused whole") {
+    rowfold::BatchQrOptions o;
+    o.capacity = 5;
+    rowfold::MultiResponse<rowfold::BatchQr<double, 3>, 2> b(o);
+    Eigen::Matrix<double, 6, 3> X = Eigen::Matrix<double, 6, 3>::Random();
+    Eigen::Matrix<double, 6, 2> Y = Eigen::Matrix<double, 6, 2>::Random();
+    CHECK(b.addRows(X, Y) == Status::capacity_full);
+    CHECK(b.count() == 0);
+    CHECK(b.addRows(X.topRows(5), Y.topRows(5)) == Status::ok);
+    CHECK(b.add(Eigen::Vector3d(1, 2, 3), Eigen::Vector2d(1, 2)) == Status::capacity_full);
+  }
+}
+
+TEST_CASE("Fixed sizes never touch the heap") {
+  rowfold::MultiResponse<rowfold::GivensQr<double, 3>, 2> g;
+  rowfold::GivensQrOptions go;
+  rowfold::MultiResponse<rowfold::NormalEquations<float, 3>, 3> n;
+  rowfold::ForgettingRlsOptions ro;
+  ro.forgetting = 0.99;
+  ro.windup.enabled = false;
+  rowfold::MultiResponse<rowfold::ForgettingRls<double, 3>, 3> r(ro);
+  rowfold::BatchQrOptions bo;
+  rowfold::MultiResponse<rowfold::BatchQr<double, 3, 64>, 2> b(bo);
+  rowfold::Summary<double, 3> sum;
+  rowfold::Summary<float, 3> sumf;
+  Eigen::Matrix<double, 3, 2> B2;
+  Eigen::Matrix<double, 3, 3> B3;
+  Eigen::Vector2d b02, yh2;
+  Eigen::Vector3d b03, yh3;
+  rowfold::Flags flags;
+  Eigen::Matrix<double, 8, 3> X = Eigen::Matrix<double, 8, 3>::Random();
+  Eigen::Matrix<double, 8, 3> Y = Eigen::Matrix<double, 8, 3>::Random();
+  unsigned char buf[4096];
+  std::size_t written = 0;
+  Stream st;
+  rowfold_test::eigenAssertHits = 0;
+  rowfold_test::newCalls = 0;
+  Eigen::internal::set_is_malloc_allowed(false);
+  rowfold_test::countNew = true;
+  for (int i = 0; i < 30; ++i) {
+    const Eigen::Vector3d x = st.x(), y = st.y(x);
+    g.add(x, y.head<2>());
+    n.add(x.cast<float>(), y.cast<float>());
+    r.add(x, y);
+    b.add(x, y.head<2>());
+  }
+  g.addRows(X, Y.leftCols<2>());
+  r.addRows(X, Y);
+  r.addDelayed(X.row(0).transpose(), Y.row(0).transpose(), 3);
+  for (int j = 0; j < 2; ++j) {
+    g.response(j).summarizeInto(sum);
+    b.response(j).summarizeInto(sum);
+  }
+  for (int j = 0; j < 3; ++j) {
+    r.response(j).summarizeInto(sum);
+    n.response(j).summarizeInto(sumf);
+  }
+  g.solveInto(B2, b02, flags);
+  b.solveInto(B2, b02, flags);
+  r.solveInto(B3, b03, flags);
+  g.predict(X.row(1).transpose(), yh2);
+  r.predict(X.row(1).transpose(), yh3);
+  const bool fits = g.snapshotSize() <= sizeof buf && r.snapshotSize() <= sizeof buf;
+  if (fits) {
+    g.snapshot(buf, sizeof buf, written);
+    g.restore(buf, written);
+    r.snapshot(buf, sizeof buf, written);
+    r.restore(buf, written);
+  }
+  rowfold_test::countNew = false;
+  Eigen::internal::set_is_malloc_allowed(true);
+  CHECK(fits);
+  CHECK(sum.status == Status::ok);
+  CHECK(rowfold_test::eigenAssertHits.load() == 0);
+  CHECK(rowfold_test::newCalls.load() == 0);
+  (void)go;
+}
