@@ -130,8 +130,10 @@ class MultiResponse {
   static constexpr int kBlock = 64;
   using JointBlock = Eigen::Matrix<Scalar, Eigen::Dynamic, KJ, Eigen::ColMajor, kBlock, MaxKJ>;
   using BlockColumn = Eigen::Matrix<Scalar, Eigen::Dynamic, 1, Eigen::ColMajor, kBlock, 1>;
-  using ExtraMatrix = Eigen::Matrix<Scalar, K, MX, Eigen::ColMajor, MaxK, MX>;
-  using ExtraVector = Eigen::Matrix<Scalar, MX, 1>;
+  // Zero extra responses (M = 1) as a runtime size bounded by 1 (Eigen's blocks need a column).
+  static constexpr int MXS = MX == 0 ? Eigen::Dynamic : MX, MaxMX = MX == 0 ? 1 : MX;
+  using ExtraMatrix = Eigen::Matrix<Scalar, K, MXS, Eigen::ColMajor, MaxK, MaxMX>;
+  using ExtraVector = Eigen::Matrix<Scalar, MXS, 1, Eigen::ColMajor, MaxMX, 1>;
   using Matrix = typename Estimator::Matrix;
 
  public:
@@ -393,7 +395,7 @@ class MultiResponse {
   static Eigen::Index dimJ(Eigen::Index k, Eigen::Index m) {
     return KJ != Eigen::Dynamic ? KJ : (jointSize(k, m) > 0 ? jointSize(k, m) : 1);
   }
-  static Eigen::Index dimX(Eigen::Index m) { return MX != Eigen::Dynamic ? MX : (kForm == 2 && m > 1 ? m - 1 : 0); }
+  static Eigen::Index dimX(Eigen::Index m) { return MXS != Eigen::Dynamic ? MXS : (kForm == 2 && m > 1 ? m - 1 : 0); }
   static Options unguarded(Options o) {
     o.windup.enabled = false;
     o.outliers.enabled = false;
@@ -462,11 +464,13 @@ class MultiResponse {
   }
 
   void ageExtras(Scalar f) {
-    if (m_joint.m_recursive)
-      m_sse *= f;
-    else
-      m_theta *= f;
-    m_syy *= f;
+    if constexpr (kForm == 2) {
+      if (m_joint.m_recursive)
+        m_sse *= f;
+      else
+        m_theta *= f;
+      m_syy *= f;
+    }
   }
 
   /// One sample through the lead recursion (response 1) and the extra responses. `aged` < 0: a
@@ -518,7 +522,9 @@ class MultiResponse {
   /// delta/alpha: theta_j += kappa e_j g, SSE_j = lambda (SSE_j + kappa e_j^2). Before the start,
   /// the co-moments m_j = lambda m_j + delta eta_j phi; at the start theta_j = M^-1 m_j from
   /// the Cholesky factor of the same co-moments the lead factored.
+  template <int Form = kForm>
   void foldExtras(Scalar delta, Scalar lam, bool wasRecursive) {
+    static_assert(Form == 2, "shared gain only");
     const Eigen::Index k = m_k;
     if (wasRecursive) {
       const Scalar alpha = lam + delta * m_phi.dot(m_joint.m_gain);
