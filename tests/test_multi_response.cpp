@@ -283,12 +283,20 @@ TEST_CASE("Contract: statuses, all-or-nothing, snapshot round trip") {
   using Multi = rowfold::MultiResponse<rowfold::GivensQr<double, 3>, 2>;
   Multi fit;
   REQUIRE(fit.status() == Status::ok);
-  SUBCASE("guards are refused, not silently dropped") {
+  SUBCASE("the windup guard is supported; the guards that judge one response are refused") {
     rowfold::GivensQrOptions o;
     o.forgetting = 0.99;  // windup guard on by default
+    CHECK(Multi(o).status() == Status::ok);
+    o.windup.regularization = 1e-3;
+    CHECK(Multi(o).status() == Status::invalid_options);
+    o.windup.regularization = 0.0;
+    o.windup.variableForgetting = true;
+    CHECK(Multi(o).status() == Status::invalid_options);
+    o.windup.variableForgetting = false;
+    o.windup.changeThreshold = 20.0;
     CHECK(Multi(o).status() == Status::invalid_options);
     o.windup.enabled = false;
-    CHECK(Multi(o).status() == Status::ok);
+    CHECK(Multi(o).status() == Status::ok);  // those options only matter with the guard on
     o.outliers.enabled = true;
     CHECK(Multi(o).status() == Status::invalid_options);
     CHECK(Multi(o).add(Eigen::Vector3d(1, 2, 3), Eigen::Vector2d(1, 2)) == Status::invalid_options);
@@ -352,6 +360,136 @@ TEST_CASE("Contract: statuses, all-or-nothing, snapshot round trip") {
     CHECK(b.addRows(X.topRows(5), Y.topRows(5)) == Status::ok);
     CHECK(b.add(Eigen::Vector3d(1, 2, 3), Eigen::Vector2d(1, 2)) == Status::capacity_full);
   }
+}
+
+namespace {
+
+// The windup guard decides on the regressors alone, so a guarded multi-response fit must equal
+// the guarded single-response fit of each response, hold for hold and floor row for floor row.
+// Invented scenario (as tests/test_tracking.cpp): y_j = a_j + t_j1 x1 + t_j2 x2 + noise, lambda
+// 0.98; excited, then both inputs parked, then x2 parked while x1 moves, then excited again
+// after a gain step.
+template <typename Single>
+void guardedCase() {
+  using S = typename Single::Scalar;
+  using Multi = rowfold::MultiResponse<Single, 3>;
+  typename Single::Options o;
+  o.forgetting = 0.98;  // the windup guard is on by default
+  Multi multi(o);
+  REQUIRE(multi.status() == Status::ok);
+  std::vector<Single> singles(3, Single(o));
+  std::mt19937_64 rng(7);
+  std::normal_distribution<double> n01(0, 1);
+  Eigen::Matrix<double, 3, 2> T;
+  T << 0.8, -0.5, 2.0, 0.3, -1.0, 1.5;
+  const Eigen::Vector3d a(1.0, -2.0, 5.0);
+  Eigen::Matrix<S, 2, 1> x(S(0.3), S(-1.2));
+  bool lowSeen = false, guardedSeen = false;
+  const auto sample = [&](bool move1, bool move2) {
+    if (move1) x(0) = S(n01(rng));
+    if (move2) x(1) = S(n01(rng));
+    Eigen::Matrix<S, 3, 1> y;
+    for (int j = 0; j < 3; ++j) y(j) = S(a(j) + T.row(j).dot(x.template cast<double>()) + 0.01 * n01(rng));
+    REQUIRE(multi.add(x, y) == Status::ok);
+    for (int j = 0; j < 3; ++j) REQUIRE(singles[static_cast<std::size_t>(j)].add(x, y(j)) == Status::ok);
+  };
+  const auto compare = [&]() {
+    for (Eigen::Index j = 0; j < 3; ++j) {
+      CAPTURE(j);
+      const auto v = multi.response(j).solve();
+      const auto s = singles[static_cast<std::size_t>(j)].solve();
+      REQUIRE(v.status == Status::ok);
+      CHECK((v.coefficients - s.coefficients).cwiseAbs().maxCoeff() <= 1e-8);
+      CHECK(std::abs(v.intercept - s.intercept) <= 1e-8);
+      CHECK(v.flags == s.flags);
+      // The statistics too: the hold forgets the residual part (T), not the slope information.
+      const auto vs = multi.response(j).summarize(), ss = singles[static_cast<std::size_t>(j)].summarize();
+      CHECK(std::abs(vs.residualStandardError - ss.residualStandardError) <= 1e-8 * ss.residualStandardError);
+      CHECK((vs.standardErrors - ss.standardErrors).cwiseAbs().maxCoeff() <= 1e-8 * ss.standardErrors.maxCoeff());
+      CHECK(std::abs(vs.effectiveCount - ss.effectiveCount) <= 1e-9 * ss.effectiveCount);
+      lowSeen = lowSeen || v.flags.has(Flag::low_excitation);
+      guardedSeen = guardedSeen || v.flags.has(Flag::windup_guarded);
+    }
+  };
+  for (int i = 0; i < 500; ++i) sample(true, true);
+  x.setZero();
+  for (int i = 0; i < 3000; ++i) {
+    sample(false, false);
+    if (i % 500 == 0) compare();
+  }
+  for (int i = 0; i < 3000; ++i) {
+    sample(true, false);
+    if (i % 500 == 0) compare();
+  }
+  T(0, 0) += 0.5;
+  for (int i = 0; i < 300; ++i) sample(true, true);
+  compare();
+  const auto& m = multi.guardCounters();
+  const auto& s0 = singles[0].guardCounters();
+  MESSAGE("held " << m.heldForgetting << ", floor rows " << m.floorRows);
+  CHECK(m.heldForgetting == s0.heldForgetting);
+  CHECK(m.floorRows == s0.floorRows);
+  CHECK(m.heldForgetting > 1000);
+  CHECK(m.floorRows > 0);
+  CHECK(lowSeen);
+  CHECK(guardedSeen);
+  // The gain step is tracked: within 10 % of it after 300 samples (6 memory lengths).
+  CHECK(std::abs(multi.response(0).solve().coefficients(0) - 1.3) < 0.05);
+}
+
+}  // namespace
+
+TEST_CASE("Windup guard: every response equals its guarded single-response fit") {
+  guardedCase<rowfold::GivensQr<double, 2>>();
+  guardedCase<rowfold::NormalEquations<double, 2>>();
+  guardedCase<rowfold::ForgettingRls<double, 2>>();
+}
+
+TEST_CASE_TEMPLATE("Windup guard in float32: 1e5 quiet samples, then a step: finite, bounded, reconverged", E,
+                   rowfold::GivensQr<float, 2>, rowfold::NormalEquations<float, 2>, rowfold::ForgettingRls<float, 2>) {
+  // tests/test_tracking.cpp's scenario with two responses (invented): lambda = 0.98, T0 = 50.
+  rowfold::MultiResponse<E, 2> fit([] {
+    typename E::Options o;
+    o.forgetting = 0.98;
+    return o;
+  }());
+  std::mt19937_64 rng(42);
+  std::normal_distribution<double> n01(0, 1);
+  double t1 = 0.8, t2 = -0.5;
+  Eigen::Vector2f x(0.3f, -1.2f);
+  const auto sample = [&](bool move) {
+    if (move) x = Eigen::Vector2f(float(n01(rng)), float(n01(rng)));
+    const double base = t1 * double(x(0)) + t2 * double(x(1));
+    REQUIRE(fit.add(x, Eigen::Vector2f(float(1.0 + base + 0.01 * n01(rng)), float(-3.0 - 2.0 * base + 0.01 * n01(rng)))) ==
+            Status::ok);
+  };
+  double worst = 0;
+  const auto error = [&]() {
+    double err = 0;
+    for (Eigen::Index j = 0; j < 2; ++j) {
+      const auto s = fit.response(j).solve();
+      REQUIRE(s.status == Status::ok);
+      REQUIRE(s.coefficients.allFinite());
+      CHECK_FALSE(s.flags.has(Flag::lost_definiteness));
+      const double g = j == 0 ? 1.0 : -2.0;
+      err = std::max(err, std::max(std::abs(double(s.coefficients(0)) - g * t1), std::abs(double(s.coefficients(1)) - g * t2)) / std::abs(g));
+    }
+    return err;
+  };
+  for (int i = 0; i < 2000; ++i) sample(true);
+  x.setZero();
+  for (long i = 0; i < 100000; ++i) {
+    sample(false);
+    if (i % 9973 == 0) worst = std::max(worst, error());
+  }
+  t1 = 1.3;
+  t2 = -1.0;
+  for (int i = 0; i < 150; ++i) sample(true);  // 3 T0
+  const double after = error();
+  MESSAGE("worst relative slope error while quiet " << worst << ", after 3 T0 of the step " << after);
+  CHECK(worst < 0.05);
+  CHECK(after < 0.05);
+  CHECK(fit.guardCounters().heldForgetting > 90000);
 }
 
 TEST_CASE("Fixed sizes never touch the heap") {

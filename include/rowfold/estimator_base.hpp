@@ -813,13 +813,16 @@ class EstimatorBase {
     return m.size() == 0 || (m.derived().array() * S(0)).sum() == S(0);
   }
 
+  /// Folds (x, y, w) with step factor lam; m_row keeps the unscaled centered row d. Returns
+  /// its weight delta (the co-moments gained delta d d').
   template <typename XD>
-  void fold(const Eigen::MatrixBase<XD>& x, Scalar y, Scalar w, Scalar lam) {
+  Scalar fold(const Eigen::MatrixBase<XD>& x, Scalar y, Scalar w, Scalar lam) {
     m_step = lam;
     const auto step = m_centering.centeredRow(x, y, w, lam, m_fit.intercept, m_row);
     derived().foldRow(x, y, w, m_row, step.delta);
     m_centering.commitStep(step, lam, m_fit.intercept, m_row);
     m_step = m_lambda;
+    return step.delta;
   }
 
   /// Fold without aging the state; the sample weighs w lambda^age (aged = lambda^age).
@@ -914,8 +917,8 @@ class EstimatorBase {
           foldAged(x, y, w / aged, aged);
           m_guard.foldSpread(one, m_row.head(m_k));
         } else {
-          fold(x, y, w, m_lambda);
-          m_guard.foldSpread(m_lambda, m_row.head(m_k));
+          const Scalar delta = fold(x, y, w, m_lambda);
+          m_guard.foldSpread(m_lambda, m_row.head(m_k), delta);
         }
         return Status::ok;
       }
@@ -951,6 +954,7 @@ class EstimatorBase {
         ++m_counters.heldForgetting;
       }
     }
+    Scalar delta = 1;  // the held path folds a scaled row
     if (held != 0) {
       // Hold the slope information only: the means, W, F and the residual sum are forgotten as
       // usual (the level keeps tracking; every sample excites the intercept direction), while
@@ -962,9 +966,9 @@ class EstimatorBase {
       m_step = m_lambda;
       m_centering.commit(x, y, weight, m_lambda, m_fit.intercept, m_row);
     } else {
-      fold(x, y, weight, lam);
+      delta = fold(x, y, weight, lam);  // m_row: the unscaled centered row, weight delta
     }
-    m_guard.foldSpread(lam, m_row.head(m_k));
+    m_guard.foldSpread(lam, m_row.head(m_k), delta);
     if (lam < one && g.enabled && g.spreadFloor > 0.0 && known && supportFloor(static_cast<Scalar>(g.spreadFloor)))
       held = static_cast<std::uint16_t>(held | static_cast<std::uint16_t>(Flag::windup_guarded));
     m_guard.lastFlags = held;

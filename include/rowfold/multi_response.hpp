@@ -96,11 +96,18 @@ struct ResponseFamily<ForgettingRls<S, K, MaxK>> {
 /// EstimatorBase (solve, summarize, conditioning, predictionInterval, covariance, ...) works on
 /// it, with the statistics of that response. It can also be copied out and fed on.
 ///
-/// **What is not carried over.** The windup guard and the outlier gate decide on one
-/// response's prediction error; they are not available here: options that enable the outlier
-/// gate, or the windup guard with lambda < 1 (its default), make status() `invalid_options`
-/// (set `windup.enabled = false` to fit with forgetting and no guard). merge() returns
-/// `not_available` for ForgettingRls (its merge works on the factor of one response).
+/// **Windup guard.** Its default part, the information gate and the information floor per
+/// input (WindupOptions; NUMERICS §2.4), decides on the regressors alone, so it is the same
+/// for every response and runs here for GivensQr, NormalEquations and ForgettingRls exactly as
+/// for a single response: h = phi' M^-1 phi from the shared R (or P); a held sample is folded
+/// without aging R, Z (P, theta_j) while the centering and the residual block T (the residual
+/// sums) forget; the floor's pseudo-row is a [e_i, B(i, :)], every response at its current
+/// slope. Each response's view then equals the guarded single-response fit of that response
+/// (tested hold for hold), and carries `low_excitation` / `windup_guarded`. The parts that judge
+/// one response's prediction error are not available: options enabling the outlier gate, or,
+/// with the guard on, regularized or variable forgetting or the change alarm, make status()
+/// `invalid_options`. merge() returns `not_available` for ForgettingRls (its merge works on the
+/// factor of one response).
 ///
 /// **Allocation:** none for fixed K and M (BatchQr: fixed Capacity too); Eigen::Dynamic sizes
 /// allocate at construction only. No member function throws. Threads: as EstimatorBase (the
@@ -160,13 +167,20 @@ class MultiResponse {
         m_gram(dimK(k), dimK(k)),
         m_chol(dimK(k), dimK(k)),
         m_z(dimK(k)),
+        m_slopes(dimK(k), dimM(m)),
+        m_guard(dimK(k)),
         m_solution(dimK(k)) {
     if (k <= 0 || m <= 0 || (K != Eigen::Dynamic && k != K) || (M != Eigen::Dynamic && m != M))
       m_status = Status::wrong_size;
     else if (m_joint.status() != Status::ok)
       m_status = m_joint.status();
-    else if (options.outliers.enabled || (options.forgetting < 1.0 && options.windup.enabled))
+    else if (options.outliers.enabled ||
+             (options.forgetting < 1.0 && options.windup.enabled &&
+              (options.windup.regularization > 0.0 || options.windup.variableForgetting ||
+               options.windup.changeThreshold > 0.0)))
       m_status = Status::invalid_options;
+    m_guarded = m_status == Status::ok && kForm != 1 && options.forgetting < 1.0 && options.windup.enabled;
+    m_windup = options.windup;
     clearExtras();
   }
 
@@ -197,9 +211,13 @@ class MultiResponse {
     const Status s = check(x, y, w);
     if (s != Status::ok || w == Scalar(0)) return s;
     if constexpr (kForm == 2) {
-      foldShared(x, y, w, Scalar(-1), 0);
+      if (m_guarded) return guardedAdd(x, y, w);
+      foldShared(x, y, w, Scalar(1), 0, Step::now);
       return Status::ok;
     } else {
+      if constexpr (kForm == 0) {
+        if (m_guarded) return guardedAdd(x, y, w);
+      }
       stackRow(x, y);
       return m_joint.add(m_row, y(m_m - 1), w);
     }
@@ -218,11 +236,20 @@ class MultiResponse {
     if constexpr (kForm == 2) {
       const Scalar aged = Centering<Scalar, K, MaxK>::agingFactor(lambda(), age);
       if (!(aged > Scalar(0))) return Status::ok;
-      foldShared(x, y, w, aged, age);
+      m_guard.lastFlags = 0;
+      const Scalar delta = foldShared(x, y, w, aged, age, Step::late);
+      if (m_guarded) m_guard.foldSpread(Scalar(1), m_phi, delta);
       return Status::ok;
     } else {
       stackRow(x, y);
-      return m_joint.addDelayed(m_row, y(m_m - 1), age, w);
+      const Status d = m_joint.addDelayed(m_row, y(m_m - 1), age, w);
+      if (d == Status::ok && m_guarded && Centering<Scalar, K, MaxK>::agingFactor(lambda(), age) > Scalar(0)) {
+        // No step passes: nothing to hold; the spread gains the scaled row (EstimatorBase::foldAged).
+        m_guard.lastFlags = 0;
+        m_joint.m_guard.lastFlags = 0;
+        m_guard.foldSpread(Scalar(1), m_joint.m_row.head(m_k));
+      }
+      return d;
     }
   }
 
@@ -246,11 +273,9 @@ class MultiResponse {
   /// forgetting, non-empty), else `ok`.
   Status advance(std::uint64_t steps = 1) {
     if (m_status != Status::ok) return m_status;
+    const bool acts = lambda() != Scalar(1) && steps != 0 && count() != 0;
     const Status s = m_joint.advance(steps);
-    if constexpr (kForm == 2) {
-      if (s == Status::ok && lambda() != Scalar(1) && steps != 0 && count() != 0)
-        ageExtras(Centering<Scalar, K, MaxK>::agingFactor(lambda(), steps));
-    }
+    if (s == Status::ok && acts) ageExtras(Centering<Scalar, K, MaxK>::agingFactor(lambda(), steps));
     return s;
   }
 
@@ -258,10 +283,9 @@ class MultiResponse {
   /// status() if not `ok`, `invalid_options` for f outside (0, 1], else `ok`.
   Status relax(Scalar f) {
     if (m_status != Status::ok) return m_status;
+    const bool acts = count() != 0 && f != Scalar(1);
     const Status s = m_joint.relax(f);
-    if constexpr (kForm == 2) {
-      if (s == Status::ok && count() != 0 && f != Scalar(1)) ageExtras(f);
-    }
+    if (s == Status::ok && acts) ageExtras(f);
     return s;
   }
 
@@ -276,7 +300,21 @@ class MultiResponse {
     if constexpr (kForm == 2) {
       return Status::not_available;
     } else {
-      return m_joint.merge(other.m_joint);
+      // The guard's spread record merges as EstimatorBase::merge does it: aged, added, plus the
+      // squared centering correction sqrt(Wa Wb / W) (xbar_b - xbar_a) (Chan, Golub & LeVeque).
+      const auto& ca = m_joint.centering();
+      const auto& cb = other.m_joint.centering();
+      const Scalar age = Centering<Scalar, K, MaxK>::agingFactor(lambda(), cb.count());
+      const Scalar wa = age * ca.weightSum(), wb = cb.weightSum();
+      const Scalar corr = m_joint.fitOptions().intercept == Intercept::fit && wa + wb > Scalar(0)
+                              ? wa * (wb / (wa + wb)) : Scalar(0);
+      m_z = cb.xMean().head(m_k) - ca.xMean().head(m_k);
+      const Status s = m_joint.merge(other.m_joint);
+      if (s == Status::ok && cb.count() != 0 && m_guarded) {
+        m_guard.spread = age * m_guard.spread + other.m_guard.spread + corr * m_z.cwiseAbs2();
+        m_guard.peak = m_guard.peak.cwiseMax(other.m_guard.peak).cwiseMax(m_guard.spread);
+      }
+      return s;
     }
   }
 
@@ -285,6 +323,10 @@ class MultiResponse {
     m_joint.reset();
     clearExtras();
   }
+
+  /// What the windup guard did since construction or reset() (heldForgetting, floorRows; the
+  /// outlier counters stay zero: the gate is not available here).
+  const GuardCounters& guardCounters() const { return m_counters; }
 
   /// Response j (0-based) as a single-response estimator: the state an estimator of type
   /// Single fed (x, y_j) would hold, formed on this call (cost in the class comment). The
@@ -353,10 +395,8 @@ class MultiResponse {
     std::size_t innerWritten = 0;
     const Status s = m_joint.snapshot(buffer + kHeader, inner, innerWritten);
     if (s != Status::ok) return s;
-    if constexpr (kForm == 2) {
-      detail::ImageWriter w{buffer + kHeader + inner};
-      visitExtras(*this, w);
-    }
+    detail::ImageWriter w{buffer + kHeader + inner};
+    visitExtras(*this, w);
     detail::putField(buffer + size - 4, detail::crc32(buffer, size - 4));
     written = size;
     return Status::ok;
@@ -370,18 +410,17 @@ class MultiResponse {
     using detail::getField;
     if (m_status != Status::ok) return m_status;
     if (image == nullptr || length < kHeader + 4 || std::memcmp(image, "RFMR", 4) != 0) return Status::corrupt_image;
-    const std::uint32_t inner = getField<std::uint32_t>(image + 16);
-    if (static_cast<std::size_t>(inner) + kHeader + extrasBytes() + 4 != length) return Status::corrupt_image;
+    // Intact (CRC) first, then ours (header: kind, Scalar, K, M), then of the expected size.
     if (detail::crc32(image, length - 4) != getField<std::uint32_t>(image + length - 4)) return Status::corrupt_image;
+    const std::uint32_t inner = getField<std::uint32_t>(image + 16);
     unsigned char expect[kHeader];
     writeHeader(expect, inner);
     if (std::memcmp(expect, image, kHeader) != 0) return Status::image_mismatch;
+    if (static_cast<std::size_t>(inner) + kHeader + extrasBytes() + 4 != length) return Status::corrupt_image;
     const Status s = m_joint.restore(image + kHeader, inner);
     if (s != Status::ok) return s;
-    if constexpr (kForm == 2) {
-      detail::ImageReader r{image + kHeader + inner};
-      visitExtras(*this, r);
-    }
+    detail::ImageReader r{image + kHeader + inner};
+    visitExtras(*this, r);
     return Status::ok;
   }
 
@@ -395,6 +434,7 @@ class MultiResponse {
   static Eigen::Index dimJ(Eigen::Index k, Eigen::Index m) {
     return KJ != Eigen::Dynamic ? KJ : (jointSize(k, m) > 0 ? jointSize(k, m) : 1);
   }
+  static Eigen::Index dimM(Eigen::Index m) { return M != Eigen::Dynamic ? M : (m > 0 ? m : 1); }
   static Eigen::Index dimX(Eigen::Index m) { return MXS != Eigen::Dynamic ? MXS : (kForm == 2 && m > 1 ? m - 1 : 0); }
   static Options unguarded(Options o) {
     o.windup.enabled = false;
@@ -454,9 +494,167 @@ class MultiResponse {
     return Status::ok;
   }
 
+  // ----- the windup guard -----
+
+  /// The explicit joint factor [R Z; 0 T] for the guard, (K+M) x (K+M): GivensQr forms it,
+  /// NormalEquations factors its co-moments into the joint's workspace (as its priorInfo does).
+  /// `ok`: the K regressor columns have a positive diagonal (their information is known).
+  template <int Form = kForm>
+  const auto& jointFactor(bool& ok) const {
+    static_assert(Form == 0, "stacked factor only");
+    const Eigen::Index k = m_k;
+    if constexpr (std::is_same<Joint, GivensQr<Scalar, KJ, MaxKJ>>::value) {
+      m_joint.formFactor();
+      const auto& F = m_joint.m_factor;
+      ok = true;
+      for (Eigen::Index i = 0; i < k; ++i) ok = ok && F(i, i) > Scalar(0);
+      return F;
+    } else {
+      auto& F = m_joint.work().aug;
+      const Scalar tol = Scalar(4) * Scalar(m_joint.m_gram.cols()) * std::numeric_limits<Scalar>::epsilon();
+      detail::semidefiniteCholesky(m_joint.m_gram, F, tol, true);
+      ok = true;
+      for (Eigen::Index i = 0; i < k; ++i) ok = ok && F(i, i) > Scalar(0);
+      return F;
+    }
+  }
+
+  /// The guarded add (EstimatorBase::guardedFold restricted to the windup guard, which decides
+  /// on the regressors alone and so is the same for every response): the information
+  /// h = phi' M^-1 phi of the sample's scaled centered regressors from the current state; below
+  /// informationGate (1 - lambda) the sample is folded without aging the slope information
+  /// (the centering and the residual part still forget; flag `low_excitation`); then the
+  /// information floor per input (pseudo-rows at every response's current slope; flag
+  /// `windup_guarded`). NUMERICS §2.4.
+  template <typename XD, typename YD>
+  Status guardedAdd(const Eigen::MatrixBase<XD>& x, const Eigen::MatrixBase<YD>& y, Scalar w) {
+    const Scalar one(1), lam = lambda();
+    const Eigen::Index k = m_k;
+    auto& J = m_joint;
+    Scalar h = 0, delta = one;
+    bool known = false;
+    if constexpr (kForm == 2) {
+      const Scalar c = J.m_centering.scaledRow(x, Scalar(y(0)), w, lam, J.m_fit.intercept, J.m_row);
+      Scalar e = 0;
+      known = c > Scalar(0) && J.priorInfo(J.m_row, h, e) && std::isfinite(h) && std::isfinite(e);
+    } else {
+      stackRow(x, y);
+      const Scalar c = J.m_centering.scaledRow(m_row, y(m_m - 1), w, lam, J.m_fit.intercept, J.m_row);
+      if (c > Scalar(0)) {
+        bool ok = false;
+        const auto& F = jointFactor(ok);
+        if (ok) {
+          m_z = J.m_row.head(k);
+          detail::forwardSubstituteTransposed(F.topLeftCorner(k, k), m_z);
+          h = m_z.squaredNorm();
+          known = std::isfinite(h);
+        }
+      }
+    }
+    const bool hold = m_windup.informationGate > 0.0 && known &&
+                      h < static_cast<Scalar>(m_windup.informationGate) * (one - lam);
+    std::uint16_t flags = hold ? static_cast<std::uint16_t>(Flag::low_excitation) : 0;
+    if (hold) ++m_counters.heldForgetting;
+    const Scalar stepLam = hold ? one : lam;
+    if constexpr (kForm == 2) {
+      delta = foldShared(x, y, w, one, 0, hold ? Step::held : Step::now);
+      m_guard.foldSpread(stepLam, m_phi, delta);
+    } else {
+      if (hold) {
+        // The residual block T forgets, R and Z do not (EstimatorBase::guardedFold's hold).
+        if constexpr (std::is_same<Joint, GivensQr<Scalar, KJ, MaxKJ>>::value) {
+          J.ageDiagonal(k, lam);
+        } else {
+          const auto& F = J.m_work.aug;  // still the factor of the state before this sample (h above)
+          const Eigen::Index n = J.m_gram.cols();
+          for (Eigen::Index c = k; c < n; ++c)
+            for (Eigen::Index i = c; i < n; ++i)  // G_yy -= (1 - lambda) T'T (lower triangle)
+              J.m_gram(i, c) -= (one - lam) * F.col(i).segment(k, c - k + 1).dot(F.col(c).segment(k, c - k + 1));
+        }
+        J.m_step = one;
+        J.foldRow(m_row, y(m_m - 1), w, J.m_row, one);  // a scaled row: weight 1
+        J.m_step = J.m_lambda;
+        J.m_centering.commit(m_row, y(m_m - 1), w, lam, J.m_fit.intercept, J.m_row);
+      } else {
+        delta = J.fold(m_row, y(m_m - 1), w, lam);
+      }
+      m_guard.foldSpread(stepLam, J.m_row.head(k), delta);
+    }
+    if (m_windup.spreadFloor > 0.0 && known && supportFloor(static_cast<Scalar>(m_windup.spreadFloor)))
+      flags = static_cast<std::uint16_t>(flags | static_cast<std::uint16_t>(Flag::windup_guarded));
+    m_guard.lastFlags = flags;
+    J.m_guard.lastFlags = flags;  // the shared-gain lead is response 1's view
+    J.m_counters = m_counters;
+    return Status::ok;
+  }
+
+  /// Every response's current slopes into m_slopes (K x M); false if the factor is singular or
+  /// a slope is not finite (as EstimatorBase's currentSlopes hook).
+  template <int Form = kForm>
+  bool currentSlopes() {
+    static_assert(Form != 1, "not for stored rows");
+    const Eigen::Index k = m_k;
+    if constexpr (kForm == 2) {
+      if (!m_joint.m_recursive) return false;
+      m_slopes.col(0) = m_joint.m_theta;
+      for (Eigen::Index j = 1; j < m_m; ++j) m_slopes.col(j) = m_theta.col(j - 1);
+    } else {
+      bool ok = false;
+      const auto& F = jointFactor(ok);
+      if (!ok) return false;
+      for (Eigen::Index j = 0; j < m_m; ++j) {
+        m_z = F.col(k + j).head(k);
+        detail::backSubstitute(F.topLeftCorner(k, k), m_z, k);
+        m_slopes.col(j) = m_z;
+      }
+    }
+    return m_slopes.allFinite();
+  }
+
+  /// The information floor (EstimatorBase::supportFloor): an input whose forgotten spread fell
+  /// below floor x its peak gets the pseudo-row a [e_j, B(j, :)] (every response at its current
+  /// slope), a^2 = floor peak_j - D_j, folded with weight 1 and no aging.
+  template <int Form = kForm>
+  bool supportFloor(Scalar floor) {
+    static_assert(Form != 1, "not for stored rows");
+    const Eigen::Index k = m_k;
+    auto& J = m_joint;
+    bool any = false;
+    for (Eigen::Index j = 0; j < k; ++j) {
+      const Scalar need = floor * m_guard.peak(j) - m_guard.spread(j);
+      if (!(need > Scalar(0))) continue;
+      if (!any && !currentSlopes()) return false;
+      any = true;
+      const Scalar a = std::sqrt(need);
+      auto& pseudo = J.m_work.v2aug;
+      pseudo.setZero();
+      pseudo(j) = a;
+      if constexpr (kForm == 2) {
+        pseudo(k) = a * m_slopes(j, 0);
+        J.m_step = Scalar(1);
+        J.foldRow(J.m_centering.xMean(), J.m_centering.yMean(), Scalar(1), pseudo, Scalar(1));
+        J.m_step = J.m_lambda;
+        m_phi.setZero();
+        m_phi(j) = a;
+        for (Eigen::Index r = 1; r < m_m; ++r) m_eta(r - 1) = a * m_slopes(j, r);
+        foldExtras(Scalar(1), Scalar(1), true);
+      } else {
+        for (Eigen::Index r = 0; r < m_m; ++r) pseudo(k + r) = a * m_slopes(j, r);
+        J.m_step = Scalar(1);
+        J.foldRow(J.m_centering.xMean(), J.m_centering.yMean(), Scalar(1), pseudo, Scalar(1));
+        J.m_step = J.m_lambda;
+      }
+      m_guard.spread(j) += need;
+      ++m_counters.floorRows;
+    }
+    return any;
+  }
+
   // ----- shared gain (ForgettingRls) -----
 
   void clearExtras() {
+    m_guard.reset();
+    m_counters = GuardCounters();
     m_theta.setZero();
     m_sse.setZero();
     m_ybar.setZero();
@@ -464,6 +662,7 @@ class MultiResponse {
   }
 
   void ageExtras(Scalar f) {
+    m_guard.spread *= f;
     if constexpr (kForm == 2) {
       if (m_joint.m_recursive)
         m_sse *= f;
@@ -473,20 +672,28 @@ class MultiResponse {
     }
   }
 
-  /// One sample through the lead recursion (response 1) and the extra responses. `aged` < 0: a
-  /// sample of this step (centered as Centering::centeredRow, weight delta, forgetting lambda);
-  /// otherwise a delayed one of weight w = w0 lambda^age (as EstimatorBase::foldAged: a scaled
-  /// row of weight 1, no forgetting). `w0` is the sample's weight, `age` its delay.
+  /// How a sample enters the shared-gain state: on time, late (addDelayed: weight w lambda^age,
+  /// no aging), or held by the windup guard (slope information not aged; the centering and the
+  /// residual sums are).
+  enum class Step : std::uint8_t { now, late, held };
+
+  /// One sample through the lead recursion (response 1) and the extra responses, each step as
+  /// EstimatorBase does it for one response: `now` as fold (Centering::centeredRow, weight
+  /// delta, forgetting lambda), `late` as foldAged and `held` as the guard's hold (a scaled row
+  /// c [d, e] of weight 1, P not aged). `w0` is the sample's weight, `aged` = lambda^age and
+  /// `age` its delay (late only). Returns the weight delta of m_phi (1 for a scaled row).
   template <typename XD, typename YD>
-  void foldShared(const Eigen::MatrixBase<XD>& x, const Eigen::MatrixBase<YD>& y, Scalar w0, Scalar aged,
-                  std::uint64_t age) {
-    const auto& c = m_joint.centering();
-    const bool delayed = aged > Scalar(0);
-    const Scalar w = delayed ? w0 * aged : w0;
-    const bool centered = m_joint.fitOptions().intercept == Intercept::fit;
-    const Scalar lam = delayed ? Scalar(1) : lambda();
-    const Scalar before = lam * c.weightSum(), wNew = before + w;
-    Scalar delta = centered ? w * (before / wNew) : w, share = centered ? w / wNew : Scalar(0);
+  Scalar foldShared(const Eigen::MatrixBase<XD>& x, const Eigen::MatrixBase<YD>& y, Scalar w0, Scalar aged,
+                    std::uint64_t age, Step kind) {
+    auto& lead = m_joint;
+    const auto& c = lead.centering();
+    const Scalar w = kind == Step::late ? w0 * aged : w0;
+    const bool centered = lead.fitOptions().intercept == Intercept::fit;
+    const Scalar lamC = kind == Step::late ? Scalar(1) : lambda();  // the centering's forgetting
+    const Scalar lamP = kind == Step::now ? lambda() : Scalar(1);   // P's forgetting
+    const Scalar before = lamC * c.weightSum(), wNew = before + w;
+    Scalar delta = centered ? w * (before / wNew) : w;
+    const Scalar share = centered ? w / wNew : Scalar(0);
     if (centered) {
       m_phi = x - c.xMean();
       m_eta = y.tail(m_m - 1) - m_ybar;
@@ -494,27 +701,37 @@ class MultiResponse {
       m_phi = x;
       m_eta = y.tail(m_m - 1);
     }
-    if (delayed) {  // the scaled row c [d, e] with weight 1 (Centering::scaledRow)
-      const Scalar s = std::sqrt(delta);
-      m_phi *= s;
-      m_eta *= s;
+    if (kind != Step::now) {  // the scaled row c [d, e] with weight 1 (Centering::scaledRow)
+      const Scalar root = std::sqrt(delta);
+      m_phi *= root;
+      m_eta *= root;
       delta = Scalar(1);
     }
-    const bool wasRecursive = m_joint.m_recursive;
-    if (!wasRecursive) m_gram = m_joint.m_P;  // co-moments before this sample (lower triangle)
-    if (delayed)
-      m_joint.addDelayed(x, Scalar(y(0)), age, w0);
-    else
-      m_joint.add(x, Scalar(y(0)), w0);
-    foldExtras(delta, lam, wasRecursive);
-    if (delayed) {
-      // Centering::commit with weight w and lambda 1: ybar += (w/W') (y - ybar), Syy += (c e)^2.
-      if (centered) m_ybar += share * (y.tail(m_m - 1) - m_ybar);
-      m_syy += m_eta.cwiseAbs2();
-    } else {
-      if (centered) m_ybar += share * m_eta;
-      m_syy = lam * m_syy + delta * m_eta.cwiseAbs2();
+    const bool wasRecursive = lead.m_recursive;
+    if (!wasRecursive) m_gram = lead.m_P;  // co-moments before this sample (lower triangle)
+    if (kind == Step::now) {
+      lead.add(x, Scalar(y(0)), w0);
+    } else if (kind == Step::late) {
+      lead.addDelayed(x, Scalar(y(0)), age, w0);
+    } else {  // EstimatorBase::guardedFold's hold, for the lead
+      lead.m_centering.scaledRow(x, Scalar(y(0)), w, lamC, lead.m_fit.intercept, lead.m_row);
+      lead.ageResidual(lamC);
+      lead.m_step = Scalar(1);
+      lead.foldRow(x, Scalar(y(0)), w, lead.m_row, Scalar(1));
+      lead.m_step = lead.m_lambda;
+      lead.m_centering.commit(x, Scalar(y(0)), w, lamC, lead.m_fit.intercept, lead.m_row);
+      m_sse *= lamC;
     }
+    foldExtras(delta, lamP, wasRecursive);
+    if (kind == Step::now) {
+      if (centered) m_ybar += share * m_eta;
+      m_syy = lamC * m_syy + delta * m_eta.cwiseAbs2();
+    } else {
+      // Centering::commit: ybar += (w/W') (y - ybar), Syy = lambda Syy + (c e)^2.
+      if (centered) m_ybar += share * (y.tail(m_m - 1) - m_ybar);
+      m_syy = lamC * m_syy + m_eta.cwiseAbs2();
+    }
+    return delta;
   }
 
   /// The extra responses' part of ForgettingRls::foldRow (its class comment): with the lead's
@@ -559,16 +776,16 @@ class MultiResponse {
   }
 
   std::size_t extrasBytes() const {
-    if constexpr (kForm != 2) {
-      return 0;
-    } else {
-      detail::ImageCounter c;
-      visitExtras(*this, c);
-      return c.bytes;
-    }
+    detail::ImageCounter c;
+    visitExtras(*this, c);
+    return c.bytes;
   }
+  /// The guard's record, then (shared gain) the extra responses' slopes, residual sums, means
+  /// and sums of squares.
   template <typename Self, typename V>
   static void visitExtras(Self& self, V& v) {
+    detail::GuardState<Scalar, K, MaxK>::visitState(self.m_guard, v);
+    if constexpr (kForm != 2) return;
     v.array(self.m_theta.data(), static_cast<std::size_t>(self.m_theta.size()));
     v.array(self.m_sse.data(), static_cast<std::size_t>(self.m_sse.size()));
     v.array(self.m_ybar.data(), static_cast<std::size_t>(self.m_ybar.size()));
@@ -606,9 +823,11 @@ class MultiResponse {
   /// form GivensQr's joint factor first (false when it was formed for a previous response).
   const Estimator& viewOf(Eigen::Index j, bool fresh) const {
     if constexpr (kForm == 2) {
-      if (j == 0) return m_joint;
+      if (j == 0) return m_joint;  // its flags of the last sample are set by guardedAdd
     }
     formView(j, fresh);
+    m_view.m_guard.lastFlags = m_guard.lastFlags;  // low_excitation / windup_guarded
+    m_view.m_counters = m_counters;
     return m_view;
   }
 
@@ -672,6 +891,13 @@ class MultiResponse {
   Vector m_phi;
   Matrix m_gram, m_chol;
   Vector m_z;
+  // The windup guard (information gate and floor): options, the spread record, slopes scratch.
+  using SlopeMatrix = Eigen::Matrix<Scalar, K, M, Eigen::ColMajor, MaxK, M>;
+  SlopeMatrix m_slopes;
+  detail::GuardState<Scalar, K, MaxK> m_guard;
+  WindupOptions m_windup;
+  bool m_guarded = false;
+  GuardCounters m_counters;
   mutable typename Estimator::SolutionType m_solution;
 };
 

@@ -43,10 +43,11 @@ struct GuardState {
   }
   bool scaleReady(int warmup) const { return warmCount >= static_cast<std::uint32_t>(warmup); }
 
-  /// After a fold with step factor lam of the scaled row (x part `phi`).
+  /// After a fold with step factor lam of the row whose x part is `phi`, folded with weight
+  /// `delta` (1 for a scaled row; c^2 for the unscaled centered row of the square-root-free path).
   template <typename DV>
-  void foldSpread(Scalar lam, const Eigen::MatrixBase<DV>& phi) {
-    spread = lam * spread + phi.cwiseAbs2();
+  void foldSpread(Scalar lam, const Eigen::MatrixBase<DV>& phi, Scalar delta = Scalar(1)) {
+    spread = lam * spread + delta * phi.cwiseAbs2();
     peak = peak.cwiseMax(spread);
   }
   /// Robust scale: the mean of q over the warm-up, then s^2 <- a s^2 + (1 - a) min(q, c^2 s^2).
