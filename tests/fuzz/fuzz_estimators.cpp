@@ -5,6 +5,7 @@
 // input also switches on the guards (outlier gate, Huber, regularization, variable forgetting,
 // change alarm) and drives merge, relax, advance and addDelayed; a sample the outlier gate
 // refuses must leave the snapshot image byte-identical (only the diagnostic counters change).
+// A first byte >= 0xF0 drives MultiResponse (two responses) over each estimator instead.
 #include <cstddef>
 #include <cstdint>
 #include <cstdlib>
@@ -102,10 +103,69 @@ void run(const std::uint8_t* data, std::size_t size) {
 template <typename S, int K, int M>
 using Batch = rowfold::BatchQr<S, K, 64, M>;
 
+// MultiResponse (two responses) over each estimator: the same checks through its own interface,
+// with the windup guard (the only guard it runs) following lambda.
+template <typename Single>
+void runMulti(const std::uint8_t* data, std::size_t size) {
+  using Scalar = typename Single::Scalar;
+  using Multi = rowfold::MultiResponse<Single, 2>;
+  Input in{data, size};
+  std::uint8_t cfg = 0;
+  double lambda = 1;
+  if (!in.take(cfg) || !in.take(lambda)) return;
+  typename Single::Options o;
+  o.forgetting = lambda;
+  o.intercept = (cfg & 1) ? rowfold::Intercept::none : rowfold::Intercept::fit;
+  o.windup.enabled = (cfg & 2) == 0;
+  Multi est(o);
+  Eigen::Matrix<Scalar, 3, 1> x;
+  Eigen::Matrix<Scalar, 2, 1> y;
+  Eigen::Matrix<Scalar, 3, 2> B;
+  Eigen::Matrix<Scalar, 2, 1> b0;
+  rowfold::Flags flags;
+  std::uint8_t op = 0;
+  while (in.take(op)) {
+    Scalar w = 1;
+    if (!in.take(x(0)) || !in.take(x(1)) || !in.take(x(2)) || !in.take(y(0)) || !in.take(y(1))) return;
+    if (op & 1) {
+      if (!in.take(w)) return;
+    }
+    const std::vector<unsigned char> imageBefore = image(est);
+    const bool late = (op & 0x0E) == 0x0E;
+    const rowfold::Status s = late ? est.addDelayed(x, y, op >> 4, w) : est.add(x, y, w);
+    if (s != rowfold::Status::ok) require(image(est) == imageBefore);
+    if ((op & 0x0E) == 0x06) {
+      Multi part = est;
+      (void)est.merge(part);
+    }
+    if ((op & 0x0E) == 0x0A) (void)est.relax(static_cast<Scalar>(0.5));
+    if ((op & 0x0E) == 0x0C) (void)est.advance(op >> 4);
+    if ((op & 0x30) == 0x30) {
+      (void)est.solveInto(B, b0, flags);
+      for (Eigen::Index j = 0; j < 2; ++j) {
+        const auto sol = est.response(j).solve();
+        if (sol.status == rowfold::Status::ok && !sol.flags.any()) require(sol.coefficients.allFinite());
+        (void)est.response(j).summarize(Scalar(0.95));
+        (void)est.response(j).predictionInterval(x, Scalar(0.9));
+      }
+    }
+    if ((op & 0xC0) == 0xC0) est.reset();
+  }
+}
+
 }  // namespace
 
 extern "C" int LLVMFuzzerTestOneInput(const std::uint8_t* data, std::size_t size) {
   if (size < 1) return 0;
+  if (data[0] >= 0xF0) {  // MultiResponse
+    switch (data[0] % 4) {
+      case 0: runMulti<rowfold::GivensQr<double, 3>>(data + 1, size - 1); break;
+      case 1: runMulti<rowfold::NormalEquations<double, 3>>(data + 1, size - 1); break;
+      case 2: runMulti<rowfold::ForgettingRls<float, 3>>(data + 1, size - 1); break;
+      default: runMulti<rowfold::BatchQr<double, 3, 64>>(data + 1, size - 1); break;
+    }
+    return 0;
+  }
   switch (data[0] % 8) {
     case 0: run<Batch, double>(data + 1, size - 1); break;
     case 1: run<rowfold::GivensQr, double>(data + 1, size - 1); break;

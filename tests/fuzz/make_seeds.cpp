@@ -23,6 +23,25 @@ void write(const char* dir, const char* name) {
   }
 }
 
+template <typename Est>
+void writeMulti(const char* dir, const char* name) {
+  using S = typename Est::Scalar;
+  Est est;
+  for (int i = 0; i < 10; ++i) {
+    const Eigen::Matrix<S, 2, 1> x(S(i), S(i * i % 7)), y(S(1 + 2 * i), S(3 - i % 4));
+    (void)est.add(x, y);
+  }
+  std::vector<unsigned char> image(est.snapshotSize());
+  std::size_t written = 0;
+  if (est.snapshot(image.data(), image.size(), written) != rowfold::Status::ok) return;
+  char path[512];
+  std::snprintf(path, sizeof path, "%s/%s", dir, name);
+  if (FILE* f = std::fopen(path, "wb")) {
+    std::fwrite(image.data(), 1, written, f);
+    std::fclose(f);
+  }
+}
+
 int main(int argc, char** argv) {
   const char* dir = argc > 1 ? argv[1] : ".";
   write<rowfold::GivensQr<double, 2>>(dir, "givens_double.img");
@@ -30,5 +49,7 @@ int main(int argc, char** argv) {
   write<rowfold::ForgettingRls<double, 2>>(dir, "rls_double.img");
   write<rowfold::BatchQr<double, 2, 16>>(dir, "batch_double.img");
   write<rowfold::GivensQr<float, 2>>(dir, "givens_float.img");
+  writeMulti<rowfold::MultiResponse<rowfold::GivensQr<double, 2>, 2>>(dir, "multi_givens_double.img");
+  writeMulti<rowfold::MultiResponse<rowfold::ForgettingRls<double, 2>, 2>>(dir, "multi_rls_double.img");
   return 0;
 }
