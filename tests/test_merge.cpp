@@ -18,6 +18,7 @@
 #include "rowfold/parallel.hpp"
 #include "rowfold/rowfold.hpp"
 #include "support/doctest_rowfold.hpp"
+#include "support/snapshot_image.hpp"
 #include "support/nist.hpp"
 
 namespace {
@@ -32,13 +33,7 @@ using BatchQrD = rowfold::BatchQr<S, K, Eigen::Dynamic, M>;
 template <template <typename, int, int> class E>
 using Dyn = E<double, Eigen::Dynamic, Eigen::Dynamic>;
 
-template <typename Est>
-std::vector<unsigned char> image(const Est& e) {
-  std::vector<unsigned char> buf(e.snapshotSize());
-  std::size_t n = 0;
-  REQUIRE(e.snapshot(buf.data(), buf.size(), n) == Status::ok);
-  return buf;
-}
+using rowfold_test::image;
 
 template <template <typename, int, int> class E>
 void smallCheck() {

@@ -20,6 +20,7 @@
 
 #include "rowfold/rowfold.hpp"
 #include "support/doctest_rowfold.hpp"
+#include "support/snapshot_image.hpp"
 #include "support/nist.hpp"
 
 namespace {
@@ -32,14 +33,7 @@ constexpr int Dyn = Eigen::Dynamic;
 template <typename S, int K, int M>
 using BatchQrD = rowfold::BatchQr<S, K, Eigen::Dynamic, M>;
 
-template <typename Est>
-std::vector<unsigned char> image(const Est& e) {
-  std::vector<unsigned char> buf(e.snapshotSize());
-  std::size_t n = 0;
-  REQUIRE(e.snapshot(buf.data(), buf.size(), n) == Status::ok);
-  REQUIRE(n == buf.size());
-  return buf;
-}
+using rowfold_test::image;
 
 // Minimum beta LRE per Wampler set (1..5) and estimator: tests/test_nist.cpp's kDouble rows.
 struct Limits {

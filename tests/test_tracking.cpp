@@ -18,6 +18,7 @@
 
 #include "rowfold/rowfold.hpp"
 #include "support/doctest_rowfold.hpp"
+#include "support/snapshot_image.hpp"
 
 namespace {
 
@@ -27,13 +28,7 @@ using rowfold::Status;
 template <typename S>
 using V2 = Eigen::Matrix<S, 2, 1>;
 
-template <typename E>
-std::vector<unsigned char> image(const E& e) {
-  std::vector<unsigned char> buf(e.snapshotSize());
-  std::size_t n = 0;
-  REQUIRE(e.snapshot(buf.data(), buf.size(), n) == Status::ok);
-  return buf;
-}
+using rowfold_test::image;
 
 /// Outcome of a long quiet-period run.
 struct WindupRun {

@@ -20,6 +20,7 @@
 #include "rowfold/rowfold.hpp"
 #include "rowfold/window.hpp"
 #include "support/doctest_rowfold.hpp"
+#include "support/snapshot_image.hpp"
 #include "support/nist.hpp"
 
 
@@ -42,14 +43,7 @@ struct Lcg {
   }
 };
 
-template <typename Est>
-std::vector<unsigned char> image(const Est& e) {
-  std::vector<unsigned char> buf(e.snapshotSize());
-  std::size_t n = 0;
-  REQUIRE(e.snapshot(buf.data(), buf.size(), n) == Status::ok);
-  REQUIRE(n == buf.size());
-  return buf;
-}
+using rowfold_test::image;
 
 struct Lres {
   double beta = 15, sd = 15, resSd = 15, r2 = 15;

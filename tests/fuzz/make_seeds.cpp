@@ -6,12 +6,7 @@
 #include "rowfold/rowfold.hpp"
 
 template <typename Est>
-void write(const char* dir, const char* name) {
-  Est est;
-  for (int i = 0; i < 10; ++i) {
-    const Eigen::Matrix<typename Est::Scalar, 2, 1> x(typename Est::Scalar(i), typename Est::Scalar(i * i % 7));
-    (void)est.add(x, typename Est::Scalar(1 + 2 * i));
-  }
+void save(const Est& est, const char* dir, const char* name) {
   std::vector<unsigned char> image(est.snapshotSize());
   std::size_t written = 0;
   if (est.snapshot(image.data(), image.size(), written) != rowfold::Status::ok) return;
@@ -24,6 +19,16 @@ void write(const char* dir, const char* name) {
 }
 
 template <typename Est>
+void write(const char* dir, const char* name) {
+  Est est;
+  for (int i = 0; i < 10; ++i) {
+    const Eigen::Matrix<typename Est::Scalar, 2, 1> x(typename Est::Scalar(i), typename Est::Scalar(i * i % 7));
+    (void)est.add(x, typename Est::Scalar(1 + 2 * i));
+  }
+  save(est, dir, name);
+}
+
+template <typename Est>
 void writeMulti(const char* dir, const char* name) {
   using S = typename Est::Scalar;
   Est est;
@@ -31,15 +36,7 @@ void writeMulti(const char* dir, const char* name) {
     const Eigen::Matrix<S, 2, 1> x(S(i), S(i * i % 7)), y(S(1 + 2 * i), S(3 - i % 4));
     (void)est.add(x, y);
   }
-  std::vector<unsigned char> image(est.snapshotSize());
-  std::size_t written = 0;
-  if (est.snapshot(image.data(), image.size(), written) != rowfold::Status::ok) return;
-  char path[512];
-  std::snprintf(path, sizeof path, "%s/%s", dir, name);
-  if (FILE* f = std::fopen(path, "wb")) {
-    std::fwrite(image.data(), 1, written, f);
-    std::fclose(f);
-  }
+  save(est, dir, name);
 }
 
 int main(int argc, char** argv) {
