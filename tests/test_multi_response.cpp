@@ -402,6 +402,8 @@ void guardedCase() {
       CHECK(std::abs(vs.residualStandardError - ss.residualStandardError) <= 1e-8 * ss.residualStandardError);
       CHECK((vs.standardErrors - ss.standardErrors).cwiseAbs().maxCoeff() <= 1e-8 * ss.standardErrors.maxCoeff());
       CHECK(std::abs(vs.effectiveCount - ss.effectiveCount) <= 1e-9 * ss.effectiveCount);
+      CHECK(std::abs(vs.sst - ss.sst) <= 1e-9 * ss.sst);
+      CHECK(std::abs(vs.rSquared - ss.rSquared) <= 1e-8);
       lowSeen = lowSeen || v.flags.has(Flag::low_excitation);
       guardedSeen = guardedSeen || v.flags.has(Flag::windup_guarded);
     }
@@ -417,7 +419,16 @@ void guardedCase() {
     if (i % 500 == 0) compare();
   }
   T(0, 0) += 0.5;
-  for (int i = 0; i < 300; ++i) sample(true, true);
+  for (int i = 0; i < 150; ++i) sample(true, true);
+  // The rest of the restart as one batch: addRows runs the guard row by row, like add.
+  Eigen::Matrix<S, 150, 2> X;
+  Eigen::Matrix<S, 150, 3> Y;
+  for (int i = 0; i < 150; ++i) {
+    X.row(i) = Eigen::Matrix<S, 1, 2>(S(n01(rng)), S(n01(rng)));
+    for (int j = 0; j < 3; ++j) Y(i, j) = S(a(j) + T.row(j).dot(X.row(i).transpose().template cast<double>()) + 0.01 * n01(rng));
+  }
+  REQUIRE(multi.addRows(X, Y) == Status::ok);
+  for (int j = 0; j < 3; ++j) REQUIRE(singles[static_cast<std::size_t>(j)].addRows(X, Y.col(j)) == Status::ok);
   compare();
   const auto& m = multi.guardCounters();
   const auto& s0 = singles[0].guardCounters();

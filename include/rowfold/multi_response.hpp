@@ -217,6 +217,8 @@ class MultiResponse {
     } else {
       if constexpr (kForm == 0) {
         if (m_guarded) return guardedAdd(x, y, w);
+        if (m_joint.room() == 0) return Status::capacity_full;
+        foldResponseSums(y, w, lambda(), false);
       }
       stackRow(x, y);
       return m_joint.add(m_row, y(m_m - 1), w);
@@ -242,6 +244,10 @@ class MultiResponse {
       return Status::ok;
     } else {
       stackRow(x, y);
+      if constexpr (kForm == 0) {
+        const Scalar aged = Centering<Scalar, K, MaxK>::agingFactor(lambda(), age);
+        if (aged > Scalar(0)) foldResponseSums(y, w * aged, Scalar(1), true);
+      }
       const Status d = m_joint.addDelayed(m_row, y(m_m - 1), age, w);
       if (d == Status::ok && m_guarded && Centering<Scalar, K, MaxK>::agingFactor(lambda(), age) > Scalar(0)) {
         // No step passes: nothing to hold; the spread gains the scaled row (EstimatorBase::foldAged).
@@ -309,7 +315,12 @@ class MultiResponse {
       const Scalar corr = m_joint.fitOptions().intercept == Intercept::fit && wa + wb > Scalar(0)
                               ? wa * (wb / (wa + wb)) : Scalar(0);
       m_z = cb.xMean().head(m_k) - ca.xMean().head(m_k);
+      for (Eigen::Index j = 0; j < m_syy.size(); ++j) {  // responses' sums: Chan, Golub & LeVeque
+        const Scalar d = cb.xMean()(m_k + j) - ca.xMean()(m_k + j);
+        m_eta(j) = age * m_syy(j) + other.m_syy(j) + corr * d * d;
+      }
       const Status s = m_joint.merge(other.m_joint);
+      if (s == Status::ok && cb.count() != 0) m_syy = m_eta;
       if (s == Status::ok && cb.count() != 0 && m_guarded) {
         m_guard.spread = age * m_guard.spread + other.m_guard.spread + corr * m_z.cwiseAbs2();
         m_guard.peak = m_guard.peak.cwiseMax(other.m_guard.peak).cwiseMax(m_guard.spread);
@@ -435,7 +446,7 @@ class MultiResponse {
     return KJ != Eigen::Dynamic ? KJ : (jointSize(k, m) > 0 ? jointSize(k, m) : 1);
   }
   static Eigen::Index dimM(Eigen::Index m) { return M != Eigen::Dynamic ? M : (m > 0 ? m : 1); }
-  static Eigen::Index dimX(Eigen::Index m) { return MXS != Eigen::Dynamic ? MXS : (kForm == 2 && m > 1 ? m - 1 : 0); }
+  static Eigen::Index dimX(Eigen::Index m) { return MXS != Eigen::Dynamic ? MXS : (kForm != 1 && m > 1 ? m - 1 : 0); }
   static Options unguarded(Options o) {
     o.windup.enabled = false;
     o.outliers.enabled = false;
@@ -474,6 +485,32 @@ class MultiResponse {
       if (m_joint.room() < static_cast<std::uint64_t>(n)) return Status::capacity_full;
     }
     if constexpr (kForm == 0) {
+      // The responses' sums of squares row by row (West's update, as add()), from the running
+      // weight and means before this batch; the joint's blocked pass merges the same rows.
+      if (m_guarded) {  // the guard acts per sample: row by row through add()
+        for (Eigen::Index i = 0; i < n; ++i) {
+          const Scalar wi = w != nullptr ? Scalar((*w)(i)) : Scalar(1);
+          if (wi != Scalar(0)) guardedAdd(X.row(i).transpose(), Y.row(i).transpose(), wi);
+        }
+        return Status::ok;
+      }
+      const auto& c = m_joint.centering();
+      const bool centered = m_joint.fitOptions().intercept == Intercept::fit;
+      const Scalar lam = lambda();
+      Scalar W = c.weightSum();
+      for (Eigen::Index j = 0; j + 1 < m_m; ++j) m_eta(j) = centered ? c.xMean()(m_k + j) : Scalar(0);
+      for (Eigen::Index i = 0; i < n; ++i) {
+        const Scalar wi = w != nullptr ? Scalar((*w)(i)) : Scalar(1);
+        if (wi == Scalar(0)) continue;
+        const Scalar before = lam * W, wNew = before + wi;
+        const Scalar delta = centered ? wi * (before / wNew) : wi, share = wi / wNew;
+        for (Eigen::Index j = 0; j + 1 < m_m; ++j) {
+          const Scalar eta = Scalar(Y(i, j)) - m_eta(j);
+          m_syy(j) = lam * m_syy(j) + delta * eta * eta;
+          if (centered) m_eta(j) += share * eta;
+        }
+        W = wNew;
+      }
       // Blocks of up to kBlock stacked rows through the joint estimator's blocked addRows.
       for (Eigen::Index i0 = 0; i0 < n; i0 += kBlock) {
         const Eigen::Index nb = n - i0 < kBlock ? n - i0 : kBlock;
@@ -560,6 +597,7 @@ class MultiResponse {
       delta = foldShared(x, y, w, one, 0, hold ? Step::held : Step::now);
       m_guard.foldSpread(stepLam, m_phi, delta);
     } else {
+      foldResponseSums(y, w, lam, hold);
       if (hold) {
         // The residual block T forgets, R and Z do not (EstimatorBase::guardedFold's hold).
         if constexpr (std::is_same<Joint, GivensQr<Scalar, KJ, MaxKJ>>::value) {
@@ -663,12 +701,34 @@ class MultiResponse {
 
   void ageExtras(Scalar f) {
     m_guard.spread *= f;
+    m_syy *= f;
     if constexpr (kForm == 2) {
       if (m_joint.m_recursive)
         m_sse *= f;
       else
         m_theta *= f;
-      m_syy *= f;
+    }
+  }
+
+  /// Stacked forms: the centered sums of squares Syy_j of the responses 1..M-1, which the joint
+  /// estimator keeps as columns of its factor (where the windup guard's holds and floor rows
+  /// change them) but not as a centering record; updated before the joint folds the sample, as
+  /// Centering does for its response (commitStep; `scaled`: commit, the row c [d, e] of the
+  /// late and the held paths). Syy_j = lambdaC Syy_j + delta (y_j - ybar_j)^2.
+  template <typename YD>
+  void foldResponseSums(const Eigen::MatrixBase<YD>& y, Scalar w, Scalar lamC, bool scaled) {
+    const auto& c = m_joint.centering();
+    const bool centered = m_joint.fitOptions().intercept == Intercept::fit;
+    const Scalar before = lamC * c.weightSum(), wNew = before + w;
+    const Scalar delta = centered ? w * (before / wNew) : w, root = std::sqrt(delta);
+    for (Eigen::Index j = 0; j < m_syy.size(); ++j) {
+      const Scalar eta = centered ? y(j) - c.xMean()(m_k + j) : Scalar(y(j));
+      if (scaled) {
+        const Scalar ce = root * eta;
+        m_syy(j) = lamC * m_syy(j) + ce * ce;
+      } else {
+        m_syy(j) = lamC * m_syy(j) + delta * eta * eta;
+      }
     }
   }
 
@@ -780,16 +840,16 @@ class MultiResponse {
     visitExtras(*this, c);
     return c.bytes;
   }
-  /// The guard's record, then (shared gain) the extra responses' slopes, residual sums, means
-  /// and sums of squares.
+  /// The guard's record, the responses' centered sums of squares Syy_1..Syy_{M-1}, then (shared
+  /// gain) the extra responses' slopes, residual sums and means.
   template <typename Self, typename V>
   static void visitExtras(Self& self, V& v) {
     detail::GuardState<Scalar, K, MaxK>::visitState(self.m_guard, v);
+    v.array(self.m_syy.data(), static_cast<std::size_t>(self.m_syy.size()));
     if constexpr (kForm != 2) return;
     v.array(self.m_theta.data(), static_cast<std::size_t>(self.m_theta.size()));
     v.array(self.m_sse.data(), static_cast<std::size_t>(self.m_sse.size()));
     v.array(self.m_ybar.data(), static_cast<std::size_t>(self.m_ybar.size()));
-    v.array(self.m_syy.data(), static_cast<std::size_t>(self.m_syy.size()));
   }
 
   void writeHeader(unsigned char* h, std::size_t inner) const {
@@ -846,7 +906,7 @@ class MultiResponse {
       f.col(k).head(k) = F.col(k + j).head(k);
       f(k, k) = F.col(k + j).segment(k, j + 1).norm();  // rho_j = |T(:, j)|
       m_view.takeFactor();
-      viewCentering(last ? c.yMean() : c.xMean()(k + j), last ? c.yySum() : F.col(k + j).head(k + j + 1).squaredNorm());
+      viewCentering(last ? c.yMean() : c.xMean()(k + j), last ? c.yySum() : m_syy(j));
     } else if constexpr (std::is_same<Joint, NormalEquations<Scalar, KJ, MaxKJ>>::value) {
       const auto& G = m_joint.m_gram;  // lower triangle of the (K+M) x (K+M) co-moments
       auto& g = m_view.m_gram;
@@ -855,7 +915,7 @@ class MultiResponse {
           G.topLeftCorner(k, k).template triangularView<Eigen::Lower>();
       g.row(k).head(k) = G.row(k + j).head(k);
       g(k, k) = G(k + j, k + j);
-      viewCentering(last ? c.yMean() : c.xMean()(k + j), last ? c.yySum() : G(k + j, k + j));
+      viewCentering(last ? c.yMean() : c.xMean()(k + j), last ? c.yySum() : m_syy(j));
     } else if constexpr (kForm == 1) {
       // Copy response j's rows into the view, oldest first (same positions, same ages).
       const Eigen::Index n = m_joint.m_n;
