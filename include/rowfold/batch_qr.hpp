@@ -44,7 +44,10 @@ struct BatchQrOptions : FitOptions {
 /// ~ u kappa_s (kappa_s = scaled condition), independent of the residual size while
 /// u kappa_s << 1.
 ///
-/// **Cost:** add O(K) (stores the row); solve O(n K^2) plus O(n K) per refinement sweep;
+/// **Cost:** add O(K) (validates and stores the row; its step of the base's centering record is
+/// deferred and run, bit-identically, when the record is read: count(), weightSum(), every query,
+/// centering(), merge, snapshot, relax; O(K) per deferred row); solve O(n K^2) plus O(n K) per
+/// refinement sweep;
 /// memory capacity (K + 2) scalars of rows plus capacity (K + 4) of workspace (n = rows stored).
 /// Rows are kept in a fixed (Capacity) or runtime (options.capacity) buffer; when it is full,
 /// add returns Status::capacity_full and leaves the state untouched.
@@ -96,8 +99,12 @@ class BatchQr : public EstimatorBase<BatchQr<Scalar_, K_, Capacity_, MaxK_>, Sca
   /// A row's age is its position: a late row would age the rows before it, so addDelayed and
   /// advance refuse (not_available) under forgetting.
   static constexpr bool positionalAges = true;
-  /// Stored regressors, capacity x K (inline storage for a fixed Capacity and K).
-  using RowMatrix = Eigen::Matrix<Scalar, Eigen::Dynamic, K_, Eigen::ColMajor, Capacity_, MaxK_>;
+  /// add() only stores the row; the centering record catches up from the stored rows when it is
+  /// read (see syncCentering).
+  static constexpr bool deferredCentering = true;
+  /// Stored regressors, capacity x K, one row per sample (row-major, so that storing a sample
+  /// writes K adjacent scalars; inline storage for a fixed Capacity and K).
+  using RowMatrix = Eigen::Matrix<Scalar, Eigen::Dynamic, K_, (K_ == 1 ? Eigen::ColMajor : Eigen::RowMajor), Capacity_, MaxK_>;
   /// A column of capacity entries (responses, weights, solve scratch).
   using Column = Eigen::Matrix<Scalar, Eigen::Dynamic, 1, Eigen::ColMajor, Capacity_, 1>;
   /// Solve-time copy of the design, capacity x (K+1).
@@ -123,8 +130,12 @@ class BatchQr : public EstimatorBase<BatchQr<Scalar_, K_, Capacity_, MaxK_>, Sca
         m_sol(k + 1),
         m_solLo(k + 1),
         m_dx(k + 1),
-        m_tmp(k + 1) {
+        m_tmp(k + 1),
+        m_syncRow(k + 1) {
     if (!(m_capacity > 0) || options.refinementSteps < 0) m_badOptions = true;
+    m_x.setZero();  // once: nothing reads a slot beyond rows(), but copies copy the whole buffer
+    m_y.setZero();
+    m_w.setZero();
     clearState();
   }
 
@@ -149,9 +160,7 @@ class BatchQr : public EstimatorBase<BatchQr<Scalar_, K_, Capacity_, MaxK_>, Sca
   void clearState() {
     m_n = 0;
     m_head = 0;
-    m_x.setZero();
-    m_y.setZero();
-    m_w.setZero();
+    m_pending = 0;  // the stored rows are dead: only slots below rows() are ever read
   }
 
   template <typename Self, typename V>
@@ -171,13 +180,21 @@ class BatchQr : public EstimatorBase<BatchQr<Scalar_, K_, Capacity_, MaxK_>, Sca
     if constexpr (!std::is_const<Self>::value) {
       self.m_n = static_cast<Eigen::Index>(n);
       self.m_head = 0;
+      self.m_pending = 0;  // the image's centering record is complete
     }
     const std::size_t rows = static_cast<std::size_t>(self.m_n), head = static_cast<std::size_t>(self.m_head);
     const auto both = [&v, rows, head](auto* data) {
       v.array(data + head, rows - head);
       v.array(data, head);
     };
-    for (Eigen::Index j = 0; j < self.m_x.cols(); ++j) both(self.m_x.col(j).data());
+    // x is stored by rows and written by columns (the image keeps its column-by-column layout).
+    for (Eigen::Index j = 0; j < self.m_x.cols(); ++j) {
+      if constexpr (std::is_same<V, detail::ImageCounter>::value) {
+        v.array(static_cast<const Scalar*>(nullptr), rows);
+      } else {
+        for (Eigen::Index pos = 0; pos < self.m_n; ++pos) v.field(self.m_x(self.slot(pos), j));
+      }
+    }
     both(self.m_y.data());
     both(self.m_w.data());
   }
@@ -190,7 +207,37 @@ class BatchQr : public EstimatorBase<BatchQr<Scalar_, K_, Capacity_, MaxK_>, Sca
 
   template <typename XD>
   void foldRow(const Eigen::MatrixBase<XD>& x, Scalar y, Scalar w, const Vector1&, Scalar) {
+    syncCentering();  // addDelayed: the base commits this row to the centering itself
     push(x.transpose(), y, w);
+  }
+
+  /// add()/addRows(): stores the row; its centering step is deferred (syncCentering). A full
+  /// sliding window whose rows are all pending commits them first, before the oldest is
+  /// overwritten.
+  template <typename XD>
+  void storeRow(const Eigen::MatrixBase<XD>& x, Scalar y, Scalar w) {
+    if (m_pending == m_capacity) syncCentering();
+    push(x.transpose(), y, w);
+    ++m_pending;
+  }
+
+  /// Commits the rows stored since the last commit (the newest m_pending rows, oldest first) to
+  /// the base's centering with exactly the operations the base's fold() runs per sample
+  /// (Centering::centeredRow, then commitStep, lambda the nominal forgetting factor: BatchQr has
+  /// no guard to change it), so means, W, F, F2, Syy and the count are bit-identical to eager
+  /// centering. The stored x, y, w are the sample's own (relax() commits before it scales w).
+  /// O(K) per pending row; called by the base before any read of the centering.
+  void syncCentering() const {
+    if (m_pending == 0) return;
+    auto& c = this->deferredCenteringState();
+    const Scalar lambda = static_cast<Scalar>(this->fitOptions().forgetting);
+    const Intercept mode = this->interceptMode();
+    for (Eigen::Index pos = m_n - m_pending; pos < m_n; ++pos) {
+      const Eigen::Index s = slot(pos);
+      const auto step = c.centeredRow(m_x.row(s).transpose(), m_y(s), m_w(s), lambda, mode, m_syncRow);
+      c.commitStep(step, lambda, mode, m_syncRow);
+    }
+    m_pending = 0;
   }
 
   /// Stores a row in the next free slot or, when the buffer is full (sliding window only; room()
@@ -448,12 +495,15 @@ class BatchQr : public EstimatorBase<BatchQr<Scalar_, K_, Capacity_, MaxK_>, Sca
   Eigen::Index m_capacity;
   Eigen::Index m_n = 0;
   Eigen::Index m_head = 0;  ///< slot of the oldest row (nonzero only once a sliding window wrapped)
+  /// Newest rows stored by add() but not yet committed to the centering (see syncCentering).
+  mutable Eigen::Index m_pending = 0;
   RowMatrix m_x;
   Column m_y, m_w;
   // Solve-time workspace (not part of the state).
   mutable Design m_design;
   mutable Column m_qtb, m_r, m_f;
   mutable Vector1 m_tau, m_sol, m_solLo, m_dx, m_tmp;  // solution = m_sol + m_solLo (twofold)
+  mutable Vector1 m_syncRow;  // syncCentering's centered row
   mutable Eigen::Index m_offset = 1;
   mutable int m_sweeps = 0;
   bool m_badOptions = false;

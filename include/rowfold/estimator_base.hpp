@@ -63,8 +63,9 @@ namespace rowfold {
 /// covariance() and correlation() with results sized once never allocate. No member function throws.
 ///
 /// Threads: the const queries (solve, summarize, conditioning, predict) use scratch storage
-/// inside the object, so one estimator must not be queried from two threads at once; copies
-/// are independent.
+/// inside the object (BatchQr's count(), weightSum(), effectiveCount() and centering() too: they
+/// commit deferred centering steps), so one estimator must not be queried from two threads at
+/// once; copies are independent.
 ///
 /// **Math written here** (every estimator reduces its state to the factor [R z; 0 rho] of the
 /// centered weighted data, R'R = X~'X~, R b = z, rho^2 = SSE): online centering (West 1979;
@@ -118,8 +119,12 @@ class EstimatorBase {
     const Scalar f2 = derived().memoryForget2();
     return f2 > Scalar(0) ? derived().memoryForget() * derived().memoryForget() / f2 : Scalar(0);
   }
-  /// The running weighted means and sums (see Centering).
-  const Centering<Scalar, K, MaxK>& centering() const { return m_centering; }
+  /// The running weighted means and sums (see Centering). An estimator that defers its
+  /// centering (BatchQr) brings it up to date first, so the record is always current.
+  const Centering<Scalar, K, MaxK>& centering() const {
+    derived().syncCentering();
+    return m_centering;
+  }
 
   /// Folds one sample with weight 1; see add(const Eigen::MatrixBase<XD>&, Scalar, Scalar).
   template <typename XD>
@@ -275,6 +280,8 @@ class EstimatorBase {
     if (o.count() == 0) return Status::ok;
     const Status s = derived().canMerge(other);
     if (s != Status::ok) return s;
+    derived().syncCentering();
+    other.syncCentering();
     const Scalar age = Centering<Scalar, K, MaxK>::agingFactor(m_lambda, o.m_centering.count());
     m_centering.mergeRow(o.m_centering, age, m_fit.intercept, m_row);
     derived().mergeState(other, age, m_row);
@@ -526,6 +533,7 @@ class EstimatorBase {
     written = 0;
     const std::size_t size = snapshotSize();
     if (buffer == nullptr || capacity < size) return Status::buffer_too_small;
+    derived().syncCentering();
     writeHeader(buffer, size - detail::kSnapshotHeaderSize - 4);
     detail::ImageWriter w{buffer + detail::kSnapshotHeaderSize};
     visitPayload(derived(), m_centering, w);
@@ -726,6 +734,18 @@ class EstimatorBase {
   Scalar memoryForget() const { return m_centering.forgetSum(); }  ///< F remembered (see memoryCount)
   Scalar memoryForget2() const { return m_centering.forgetSum2(); }  ///< F2 remembered (see memoryCount)
 
+  /// Estimators that set `deferredCentering` (BatchQr: it keeps the raw rows) store a sample
+  /// with `storeRow(x, y, w)` and commit it to the centering later, in `syncCentering() const`,
+  /// with the same centeredRow/commitStep operations fold() would have run, in arrival order, so
+  /// the record is bit-identical. The base calls syncCentering before every read of the
+  /// centering (centering(), merge, snapshot, relax/advance, addDelayed); the default does nothing.
+  static constexpr bool deferredCentering = false;
+  /// See deferredCentering.
+  void syncCentering() const {}
+  /// The centering, writable from a const member (for syncCentering; one thread at a time, as
+  /// for every query).
+  Centering<Scalar, K, MaxK>& deferredCenteringState() const { return m_centering; }
+
   /// Default: the state has a fixed size, the one it has now.
   std::size_t expectedStateBytes(const unsigned char*, std::size_t) const {
     detail::ImageCounter c;
@@ -803,7 +823,9 @@ class EstimatorBase {
     if (derived().status() != Status::ok) return derived().status();  // incl. the estimator's own options
     if (x.size() != m_k) return Status::wrong_size;
     if (!(w >= Scalar(0)) || !std::isfinite(w)) return Status::negative_weight;
-    if (!std::isfinite(y) || !x.allFinite()) return Status::nonfinite_input;
+    // x * 0 is 0 for finite x and NaN for NaN or Inf: one vectorized pass without early exit
+    // (Eigen's allFinite tests entry by entry).
+    if (!std::isfinite(y) || !allFiniteFast(x)) return Status::nonfinite_input;
     return Status::ok;
   }
 
@@ -817,6 +839,10 @@ class EstimatorBase {
   /// its weight delta (the co-moments gained delta d d').
   template <typename XD>
   Scalar fold(const Eigen::MatrixBase<XD>& x, Scalar y, Scalar w, Scalar lam) {
+    if constexpr (Derived::deferredCentering) {
+      derived().storeRow(x, y, w);  // committed to the centering later, with lambda = lam (unguarded)
+      return w;  // not the fold weight: deferred estimators have no guard, which alone reads it
+    }
     m_step = lam;
     const auto step = m_centering.centeredRow(x, y, w, lam, m_fit.intercept, m_row);
     derived().foldRow(x, y, w, m_row, step.delta);
@@ -828,6 +854,7 @@ class EstimatorBase {
   /// Fold without aging the state; the sample weighs w lambda^age (aged = lambda^age).
   template <typename XD>
   void foldAged(const Eigen::MatrixBase<XD>& x, Scalar y, Scalar w, Scalar aged) {
+    derived().syncCentering();
     m_step = Scalar(1);
     m_centering.scaledRow(x, y, w * aged, Scalar(1), m_fit.intercept, m_row);
     derived().foldRow(x, y, w * aged, m_row, Scalar(1));  // a scaled row: weight 1
@@ -843,6 +870,7 @@ class EstimatorBase {
   }
 
   void relaxState(Scalar f) {
+    derived().syncCentering();
     derived().ageState(f);
     m_centering.age(f);
     m_guard.spread *= f;
@@ -1050,7 +1078,7 @@ class EstimatorBase {
   Scalar m_step;
   Status m_status = Status::ok;
   bool m_guarded = false;
-  Centering<Scalar, K, MaxK> m_centering;
+  mutable Centering<Scalar, K, MaxK> m_centering;  // mutable: see deferredCentering
   GuardStateType m_guard;
   GuardCounters m_counters;
   mutable WorkspaceType m_work;
