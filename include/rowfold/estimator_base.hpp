@@ -734,13 +734,12 @@ class EstimatorBase {
   Scalar memoryForget() const { return m_centering.forgetSum(); }  ///< F remembered (see memoryCount)
   Scalar memoryForget2() const { return m_centering.forgetSum2(); }  ///< F2 remembered (see memoryCount)
 
-  /// Estimators that set `deferredCentering` (BatchQr: it keeps the raw rows) store a sample
+  /// Estimators whose `deferredCentering` is true (BatchQr: it keeps the raw rows) store a sample
   /// with `storeRow(x, y, w)` and commit it to the centering later, in `syncCentering() const`,
   /// with the same centeredRow/commitStep operations fold() would have run, in arrival order, so
   /// the record is bit-identical. The base calls syncCentering before every read of the
-  /// centering (centering(), merge, snapshot, relax/advance, addDelayed); the default does nothing.
-  static constexpr bool deferredCentering = false;
-  /// See deferredCentering.
+  /// centering (centering(), merge, snapshot, relax/advance, addDelayed); this default (for the
+  /// estimators that fold at once) does nothing.
   void syncCentering() const {}
   /// The centering, writable from a const member (for syncCentering; one thread at a time, as
   /// for every query).

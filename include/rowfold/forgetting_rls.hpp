@@ -86,6 +86,7 @@ class ForgettingRls : public EstimatorBase<ForgettingRls<Scalar_, K_, MaxK_>, Sc
   static constexpr EstimatorKind kind = EstimatorKind::forgetting_rls;  ///< snapshot image kind
   static constexpr bool guardable = true;  ///< the windup guard and outlier gate apply
   static constexpr bool positionalAges = false;  ///< ages live in the state: addDelayed/advance are exact
+  static constexpr bool deferredCentering = false;  ///< folds at once (see EstimatorBase::syncCentering)
 
   /// Fixed K. status() reports invalid options.
   explicit ForgettingRls(const Options& options = Options()) : ForgettingRls(K_ == Eigen::Dynamic ? 0 : K_, options) {}

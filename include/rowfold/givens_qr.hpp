@@ -82,6 +82,7 @@ class GivensQr : public EstimatorBase<GivensQr<Scalar_, K_, MaxK_>, Scalar_, K_,
   static constexpr EstimatorKind kind = EstimatorKind::givens_qr;  ///< snapshot image kind
   static constexpr bool guardable = true;  ///< the windup guard and outlier gate apply
   static constexpr bool positionalAges = false;  ///< ages live in the state: addDelayed/advance are exact
+  static constexpr bool deferredCentering = false;  ///< folds at once (see EstimatorBase::syncCentering)
 
   /// Fixed K. status() reports invalid options; see EstimatorBase::status().
   explicit GivensQr(const Options& options = Options()) : GivensQr(K_ == Eigen::Dynamic ? 0 : K_, options) {}

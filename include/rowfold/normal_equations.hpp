@@ -64,6 +64,7 @@ class NormalEquations : public EstimatorBase<NormalEquations<Scalar_, K_, MaxK_>
   static constexpr EstimatorKind kind = EstimatorKind::normal_equations;  ///< snapshot image kind
   static constexpr bool guardable = true;  ///< the windup guard and outlier gate apply
   static constexpr bool positionalAges = false;  ///< ages live in the state: addDelayed/advance are exact
+  static constexpr bool deferredCentering = false;  ///< folds at once (see EstimatorBase::syncCentering)
 
   /// Fixed K. status() reports invalid options; see EstimatorBase::status().
   explicit NormalEquations(const Options& options = Options())
