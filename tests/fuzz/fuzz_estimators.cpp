@@ -52,9 +52,11 @@ void exercise(Est& est, Input& in) {
     if (op & 1) {
       if (!in.take(w)) return;
     }
+    // The image first: snapshot() may bring a deferred record up to date (BatchQr's centering),
+    // which changes the object's bytes but not its state; then the bytes a refusal must keep.
+    const std::vector<unsigned char> imageBefore = image(est);
     unsigned char before[sizeof(Est)];
     std::memcpy(before, static_cast<const void*>(&est), sizeof(Est));
-    const std::vector<unsigned char> imageBefore = image(est);
     const bool late = (op & 0x0E) == 0x0E;
     const rowfold::Status s = late ? est.addDelayed(x, y, op >> 4, w) : est.add(x, y, w);
     if (s == rowfold::Status::outlier)
