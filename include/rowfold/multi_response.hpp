@@ -94,7 +94,8 @@ struct ResponseFamily<ForgettingRls<S, K, MaxK>> {
 /// ForgettingRls O(K^2); BatchQr O(n K)) into storage inside this object: the reference is
 /// valid until the next call of response() or of a query of this object. Every query of
 /// EstimatorBase (solve, summarize, conditioning, predictionInterval, covariance, ...) works on
-/// it, with the statistics of that response. It can also be copied out and fed on.
+/// it, with the statistics of that response. It can also be copied out and fed on (a copy has
+/// the options with the guards off: the windup guard runs in this object, not in the view).
 ///
 /// **Windup guard.** Its default part, the information gate and the information floor per
 /// input (WindupOptions; NUMERICS §2.4), decides on the regressors alone, so it is the same
