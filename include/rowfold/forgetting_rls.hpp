@@ -193,13 +193,7 @@ class ForgettingRls : public EstimatorBase<ForgettingRls<Scalar_, K_, MaxK_>, Sc
     // column sweep; g_i g_j is formed before scaling so both triangles stay bit-identical.
     Scalar* const P = m_P.data();
     Scalar* __restrict g = m_gain.data();
-    const Scalar* __restrict v = phi.data();
-    for (Eigen::Index i = 0; i < k; ++i) g[i] = Scalar(0);
-    for (Eigen::Index j = 0; j < k; ++j) {
-      const Scalar* __restrict pj = P + j * k;
-      const Scalar vj = v[j];
-      for (Eigen::Index i = 0; i < k; ++i) g[i] += pj[i] * vj;
-    }
+    gainOf(phi, m_gain);
     const Scalar alpha = lambda + delta * phi.dot(m_gain);
     const Scalar e = eta - phi.dot(m_theta);
     if (!(alpha > Scalar(0)) || !std::isfinite(alpha)) {
@@ -230,6 +224,13 @@ class ForgettingRls : public EstimatorBase<ForgettingRls<Scalar_, K_, MaxK_>, Sc
     if (!positive) m_lost = true;
   }
 
+  /// g = P phi for the full symmetric P, one dot product per entry (P's columns are its rows):
+  /// each g_i is summed in a register, with no store-to-load chain through g between columns.
+  template <typename VD, typename GD>
+  void gainOf(const VD& phi, GD& g) const {
+    for (Eigen::Index i = 0; i < g.size(); ++i) g(i) = m_P.col(i).dot(phi);
+  }
+
   void ageState(Scalar f) {
     if (m_recursive) {
       m_P /= f;  // both triangles (kept symmetric)
@@ -255,7 +256,7 @@ class ForgettingRls : public EstimatorBase<ForgettingRls<Scalar_, K_, MaxK_>, Sc
     if (!m_recursive) return false;
     const Eigen::Index k = this->regressors();
     auto& g = this->work().v1;
-    g.noalias() = m_P.template selfadjointView<Eigen::Lower>() * row.head(k);
+    gainOf(row.head(k), g);
     h = row.head(k).dot(g);
     e = row(k) - row.head(k).dot(m_theta);
     return true;
