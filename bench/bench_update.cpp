@@ -14,9 +14,10 @@ constexpr Eigen::Index kStoreCapacity = 4096;
 constexpr double kRlsLambda = 0.999;
 
 template <class E>
-E makeEstimator(int k, double lambda) {
+E makeEstimator(int k, double lambda, bool guard = true) {
   typename E::Options o;
   o.forgetting = lambda;
+  o.windup.enabled = guard;
   if constexpr (std::is_same<typename E::Options, rowfold::BatchQrOptions>::value) o.capacity = kStoreCapacity;
   return E(k, o);
 }
@@ -37,9 +38,9 @@ void timeSamples(benchmark::State& st, int k, double flopsPerRow, Step&& step) {
 }
 
 template <class E>
-void rowfoldUpdate(benchmark::State& st, int k, double lambda, double flops) {
+void rowfoldUpdate(benchmark::State& st, int k, double lambda, double flops, bool guard = true) {
   using S = typename E::Scalar;
-  E est = makeEstimator<E>(k, lambda);
+  E est = makeEstimator<E>(k, lambda, guard);
   benchmark::DoNotOptimize(&est);
   timeSamples<S>(st, k, flops, [&](const Samples<S>& d, Eigen::Index i) {
     if constexpr (E::kind == rowfold::EstimatorKind::batch_qr)
@@ -57,16 +58,18 @@ void baselineUpdate(benchmark::State& st, B est, int k, double flops) {
 template <typename S, int K>
 void registerRowfold(const std::string& kind) {
   const int k = K == Eigen::Dynamic ? 0 : K;
-  auto reg = [&](const char* name, auto tag, double lambda, double flops, int kk) {
+  auto reg = [&](const char* name, auto tag, double lambda, double flops, int kk, bool guard = true) {
     using E = typename decltype(tag)::type;
     add(std::string("update/") + name + "/" + scalarName<S>() + "/" + kind + "/" + std::to_string(kk),
-        [=](benchmark::State& st) { rowfoldUpdate<E>(st, kk, lambda, flops); });
+        [=](benchmark::State& st) { rowfoldUpdate<E>(st, kk, lambda, flops, guard); });
   };
   auto each = [&](int kk) {
     const int n = kk + 1;  // centered state width
     reg("NormalEquations", Tag<rowfold::NormalEquations<S, K>>{}, 1.0, rank1Flops(n), kk);
     reg("GivensQr", Tag<rowfold::GivensQr<S, K>>{}, 1.0, givensFlops(n), kk);
     reg("ForgettingRls", Tag<rowfold::ForgettingRls<S, K>>{}, kRlsLambda, rlsFlops(n - 1), kk);
+    // Like for like with the P-form baselines, which have no windup guard.
+    reg("ForgettingRls:noguard", Tag<rowfold::ForgettingRls<S, K>>{}, kRlsLambda, rlsFlops(n - 1), kk, false);
     reg("BatchQr", Tag<rowfold::BatchQr<S, K>>{}, 1.0, 0.0, kk);
   };
   if (K != Eigen::Dynamic) {

@@ -48,6 +48,7 @@ FORMS = [
     ("NormalEquations", ["base:Rank1Full", "base:Rank1Lower"]),
     ("GivensQr", ["base:PlainGivens", "base:PlainGivensDyn"]),  # Dyn: name used by the first runs
     ("ForgettingRls", ["base:PlainRls", "base:TextbookRls"]),
+    ("ForgettingRls:noguard", ["base:PlainRls", "base:TextbookRls"]),  # guard off: like for like
     ("BatchQr", ["base:PlainStore"]),
 ]
 
