@@ -93,6 +93,13 @@ TEST_CASE_TEMPLATE_DEFINE("contract", F, contract_id) {
     CHECK(p.status == Status::ok);
     CHECK(p.confidenceLower <= p.value);
     CHECK(p.predictionLower <= p.confidenceLower);
+    // A confidence level outside (0, 1) has no t quantile: refused, not NaN intervals.
+    for (const Scalar level : {Scalar(0), Scalar(1), Scalar(-0.5), Scalar(1.5), std::numeric_limits<Scalar>::quiet_NaN()}) {
+      CAPTURE(level);
+      CHECK(est.summarize(level).status == Status::invalid_argument);
+      CHECK(est.predictionInterval(x0, level).status == Status::invalid_argument);
+    }
+    CHECK(est.summarize(Scalar(0.99)).status == Status::ok);
   }
 
   SUBCASE("bad input is refused with a distinct Status and leaves the state bit-identical") {

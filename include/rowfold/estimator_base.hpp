@@ -397,12 +397,12 @@ class EstimatorBase {
   /// conditioningInto. For a rank-deficient fit (not BatchQr, which sums its raw residuals)
   /// SSE = rho^2 + |z - R b|^2: the residual the basic solution leaves in the dependent rows.
   ///
-  /// Preconditions: 0 < level < 1 (not checked: outside it the intervals are meaningless, NaN for
-  /// level >= 1); `out` sized for K (Summary(k) or resize), else it is resized (allocation for
+  /// Preconditions: `out` sized for K (Summary(k) or resize), else it is resized (allocation for
   /// Eigen::Dynamic K).
   ///
-  /// Returns `empty` (only out.status is written), `not_available` (out.status and out.flags
-  /// written; flags say why) or `ok`. Flags: those of conditioningInto, `too_few_samples`
+  /// Returns `invalid_argument` (level not strictly between 0 and 1, NaN included; only
+  /// out.status is written), `empty` (only out.status is written), `not_available` (out.status
+  /// and out.flags written; flags say why) or `ok`. Flags: those of conditioningInto, `too_few_samples`
   /// (F - p q <= 0 or n_eff <= p: s, t and the intervals are NaN), the estimator's own.
   /// Standard errors are NaN when R is singular or rank deficient.
   ///
@@ -410,6 +410,11 @@ class EstimatorBase {
   /// cross-product matrix; with `ill_conditioned` set they may have no correct digit (NUMERICS
   /// §6.5). Cost: the estimator's factorization + O(K^3) + one t quantile.
   Status summarizeInto(SummaryType& out, Scalar level = Scalar(0.95)) const {
+    if (!validLevel(level)) {
+      out.flags = Flags();
+      out.status = Status::invalid_argument;
+      return out.status;
+    }
     if (count() == 0) {
       out.flags = Flags();
       out.status = Status::empty;
@@ -487,9 +492,8 @@ class EstimatorBase {
   /// confidence interval of the mean response yhat -+ t s sqrt(h0), prediction interval of a new
   /// unit-weight observation yhat -+ t s sqrt(1 + h0), t = t_{(1+level)/2, n_eff - p}.
   ///
-  /// Precondition: 0 < level < 1 (not checked).
-  ///
-  /// Returns `wrong_size` (x0.size() != K), `empty`, `not_available` (no finite factor) or `ok`.
+  /// Returns `wrong_size` (x0.size() != K), `invalid_argument` (level not strictly between 0
+  /// and 1, NaN included), `empty`, `not_available` (no finite factor) or `ok`.
   /// Flags: `too_few_samples` (n_eff <= p: t and the intervals are NaN), `rank_deficient` (R
   /// singular or a column dependent: leverage and intervals are NaN), the estimator's own. No
   /// conditioning analysis (call conditioning() for `ill_conditioned`, `collinear`).
@@ -501,6 +505,10 @@ class EstimatorBase {
     PredictionType out;
     if (x0.size() != m_k) {
       out.status = Status::wrong_size;
+      return out;
+    }
+    if (!validLevel(level)) {
+      out.status = Status::invalid_argument;
       return out;
     }
     if (count() == 0) return out;
@@ -1029,6 +1037,9 @@ class EstimatorBase {
   }
 
  protected:
+  /// A confidence level the t quantile accepts: strictly between 0 and 1 (false for NaN).
+  static bool validLevel(Scalar level) { return level > Scalar(0) && level < Scalar(1); }
+
   /// Default block ingestion: one validated row at a time (zero weights skipped, they do not age
   /// the state). Estimators with a blocked path shadow this.
   template <typename XD, typename YD, typename WD>

@@ -28,6 +28,7 @@ namespace rowfold {
 /// - `outlier`: `add`, `addDelayed` (and BlockWindow::add) when the outlier gate refuses the
 ///   sample; `addRows` skips such rows instead.
 /// - `not_definite`: GivensQr::remove (the downdate would leave an indefinite factor).
+/// - `invalid_argument`: `summarizeInto`, `predictionInterval` (confidence level not in (0, 1)).
 /// addRowsParallel returns what addRows and merge return.
 enum class Status : std::uint8_t {
   ok = 0,
@@ -43,7 +44,8 @@ enum class Status : std::uint8_t {
   image_mismatch,    ///< restore: valid image of another estimator, Scalar, K, version or options
   outlier,           ///< the outlier gate refused the sample (innovation or leverage too large)
   not_definite,      ///< removing a sample (downdate) would leave a factor that is not positive definite
-  state_mismatch     ///< merge: the other state has another K, intercept mode or options
+  state_mismatch,    ///< merge: the other state has another K, intercept mode or options
+  invalid_argument   ///< a query's argument is outside its domain (confidence level not in (0, 1))
 };
 
 /// Short, stable, allocation-free name of a status (for logs and reports).
@@ -63,6 +65,7 @@ constexpr const char* nameOf(Status s) noexcept {
     case Status::outlier: return "outlier";
     case Status::not_definite: return "not_definite";
     case Status::state_mismatch: return "state_mismatch";
+    case Status::invalid_argument: return "invalid_argument";
   }
   return "unknown";
 }
