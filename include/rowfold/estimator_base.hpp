@@ -923,17 +923,25 @@ class EstimatorBase {
     const bool delayed = aged > Scalar(0);
     const Scalar noiseWeight = w;  // the sample's own precision (aging does not change its noise)
     if (delayed) w *= aged;
-    const Scalar c = m_centering.scaledRow(x, y, w, delayed ? one : m_lambda, m_fit.intercept, m_row);
-    Scalar h = 0, e = 0, q = 0;
-    const bool known = c > Scalar(0) && derived().priorInfo(m_row, h, e) && std::isfinite(h) && std::isfinite(e);
-    Scalar hx = 0;
-    if (known) {
-      hx = h / (c * c);  // d' M^-1 d of the unscaled centered regressors
+    // Leverage and prediction error of the unscaled centered row d (weight delta = c^2): both
+    // are homogeneous in the row, so h = delta hx and e = c e_d without forming c (no square
+    // root on the path to the gate's decision).
+    const Scalar deltaRow = m_centering.centeredRow(x, y, w, delayed ? one : m_lambda, m_fit.intercept, m_row).delta;
+    Scalar h = 0, ed = 0, q = 0, hxd = 0;
+    const bool known =
+        deltaRow > Scalar(0) && derived().priorInfo(m_row, hxd, ed) && std::isfinite(hxd) && std::isfinite(ed);
+    if (known) h = deltaRow * hxd;
+    // The normalized prediction error q and its robust running scale are read only by the
+    // outlier gate, variable forgetting and the change alarm; with all three off (the default)
+    // they are not formed (four divisions a sample) and the scale stays at its reset value.
+    const bool scaled = known && (o.enabled || g.variableForgetting || g.changeThreshold > 0.0);
+    const Scalar hx = hxd;  // d' M^-1 d of the unscaled centered regressors
+    if (scaled) {
       Scalar spread = one / noiseWeight + hx;
       if (m_fit.intercept == Intercept::fit) spread += one / m_centering.weightSum();
-      q = (e / c) * (e / c) / spread;  // squared prediction error over its variance factor
+      q = ed * ed / spread;  // squared prediction error over its variance factor
     }
-    const bool ready = known && m_guard.scaleReady(o.warmup);
+    const bool ready = scaled && m_guard.scaleReady(o.warmup);
     const Scalar c2 = static_cast<Scalar>(o.threshold * o.threshold);
     if (o.enabled && ready) {
       const bool leverage = o.leverageLimit > 0.0 && hx > static_cast<Scalar>(o.leverageLimit);
@@ -970,7 +978,7 @@ class EstimatorBase {
     if (delayed) {  // no step passes: no forgetting to guard, no regularization pseudo-row
       foldAged(x, y, weight / aged, aged);
       m_guard.foldSpread(one, m_row.head(m_k));
-      if (known) m_guard.foldScale(q, o.warmup, static_cast<Scalar>(o.scaleMemory), c2);
+      if (scaled) m_guard.foldScale(q, o.warmup, static_cast<Scalar>(o.scaleMemory), c2);
       return Status::ok;
     }
     // Step forgetting factor.
@@ -1021,7 +1029,7 @@ class EstimatorBase {
       m_step = m_lambda;
       m_guard.cycle = (m_guard.cycle + 1) % static_cast<std::uint32_t>(m_k);
     }
-    if (known) {
+    if (scaled) {
       if (g.enabled && g.changeThreshold > 0.0 && ready) {
         m_guard.cusum += q / m_guard.scale2 - one - static_cast<Scalar>(g.changeDrift);
         if (m_guard.cusum < Scalar(0)) m_guard.cusum = Scalar(0);
