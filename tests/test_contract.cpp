@@ -8,6 +8,7 @@
 #include <cstring>
 #include <limits>
 #include <random>
+#include <vector>
 
 #include "rowfold/rowfold.hpp"
 #include "support/doctest_rowfold.hpp"
@@ -246,4 +247,95 @@ TEST_CASE("collinear inputs raise the VIF flag (threshold 10 = common practice, 
   CHECK(c.flags.has(Flag::collinear));
   CHECK(c.vif(0) > 10);
   CHECK_FALSE(c.flags.has(Flag::near_singular));
+}
+
+namespace {
+
+// addRows with a bad row in a late block, after many clean blocks have been folded into the
+// call's accumulator: the state (snapshot image, and for fixed K every byte of the object) is
+// as before, and the Status is the one add() gives for the first bad row, in row order.
+template <typename E>
+void lateBlockRefusal(E est) {
+  using Mat = Eigen::Matrix<double, Eigen::Dynamic, 3, Eigen::RowMajor>;
+  std::mt19937_64 rng(11);
+  for (int i = 0; i < 20; ++i) REQUIRE(est.add(randomRow<double>(rng), double(i)) == Status::ok);
+  const Eigen::Index n = 5000, bad = 4321;
+  Mat X(n, 3);
+  Eigen::VectorXd y(n), w = Eigen::VectorXd::Ones(n);
+  for (Eigen::Index r = 0; r < n; ++r) {
+    X.row(r) = randomRow<double>(rng).transpose();
+    y(r) = truth<double>(X.row(r).transpose());
+  }
+  std::vector<unsigned char> image(est.snapshotSize()), after(est.snapshotSize());
+  std::size_t written = 0;
+  REQUIRE(est.snapshot(image.data(), image.size(), written) == Status::ok);
+  static unsigned char bytes[sizeof(E)];
+  std::memcpy(bytes, static_cast<const void*>(&est), sizeof(E));
+  const double nan = std::numeric_limits<double>::quiet_NaN(), inf = std::numeric_limits<double>::infinity();
+  const auto unchanged = [&]() {
+    std::size_t wr = 0;
+    REQUIRE(est.snapshot(after.data(), after.size(), wr) == Status::ok);
+    const bool object = E::K == Eigen::Dynamic || std::memcmp(bytes, static_cast<const void*>(&est), sizeof(E)) == 0;
+    return object && after == image;
+  };
+  // Reference Status of a row: what add() on a copy says.
+  const auto addStatus = [&](Eigen::Index r) {
+    E copy = est;
+    return copy.add(X.row(r).transpose(), y(r), w(r));
+  };
+  struct Case {
+    const char* what;
+    Eigen::Index row;
+    int col;        // 0..2: x, 3: y, 4: w
+    double value;
+    Status expected;
+  };
+  const Case cases[] = {{"NaN in x", bad, 1, nan, Status::nonfinite_input},
+                        {"Inf in y", bad, 3, inf, Status::nonfinite_input},
+                        {"negative weight", bad, 4, -1.0, Status::negative_weight},
+                        {"NaN weight", bad, 4, nan, Status::negative_weight},
+                        {"NaN in the last row", n - 1, 0, nan, Status::nonfinite_input}};
+  for (const bool weighted : {false, true}) {
+    for (const Case& c : cases) {
+      if (!weighted && c.col == 4) continue;
+      CAPTURE(c.what);
+      CAPTURE(weighted);
+      Mat Xb = X;
+      Eigen::VectorXd yb = y, wb = w;
+      if (c.col < 3) Xb(c.row, c.col) = c.value;
+      if (c.col == 3) yb(c.row) = c.value;
+      if (c.col == 4) wb(c.row) = c.value;
+      std::swap(X, Xb);
+      std::swap(y, yb);
+      std::swap(w, wb);
+      CHECK(addStatus(c.row) == c.expected);
+      std::swap(X, Xb);
+      std::swap(y, yb);
+      std::swap(w, wb);
+      CHECK((weighted ? est.addRows(Xb, yb, wb) : est.addRows(Xb, yb)) == c.expected);
+      CHECK(unchanged());
+    }
+  }
+  // Two bad rows in one block: the first in row order decides; a zero-weight row is still checked.
+  Mat Xb = X;
+  Eigen::VectorXd wb = w;
+  wb(bad) = -2;
+  Xb(bad + 3, 0) = nan;
+  CHECK(est.addRows(Xb, y, wb) == Status::negative_weight);
+  CHECK(unchanged());
+  wb(bad) = 0;
+  Xb(bad, 2) = inf;
+  CHECK(est.addRows(Xb, y, wb) == Status::nonfinite_input);
+  CHECK(unchanged());
+  // The clean call is accepted and recovers the exact model.
+  REQUIRE(est.addRows(X, y) == Status::ok);
+  CHECK(est.count() == 20u + static_cast<std::uint64_t>(n));
+}
+
+}  // namespace
+
+TEST_CASE("NormalEquations addRows: a bad row in a late block leaves the state byte-identical") {
+  lateBlockRefusal(rowfold::NormalEquations<double, 3>());
+  lateBlockRefusal(rowfold::NormalEquations<double, Eigen::Dynamic>(3, rowfold::NormalEquationsOptions()));
+  lateBlockRefusal(rowfold::GivensQr<double, 3>());  // the two-pass path, same contract
 }

@@ -20,6 +20,14 @@
 
 namespace rowfold {
 
+namespace detail {
+/// Derived::fusedRows if the estimator declares it, else false (opt-in one-pass addRows).
+template <typename D, typename = void>
+struct FusedRows : std::false_type {};
+template <typename D>
+struct FusedRows<D, std::void_t<decltype(D::fusedRows)>> : std::bool_constant<D::fusedRows> {};
+}  // namespace detail
+
 /// Shared interface of all estimators. The contract, in code:
 /// ```
 ///   rowfold::GivensQr<double, 3> fit;              // K = 3 regressors, intercept fitted
@@ -41,6 +49,9 @@ namespace rowfold {
 ///   Raw x, y, w are given for estimators that keep raw data;
 /// - optionally `void foldRows(X, y, w)`: fold validated rows (w == nullptr: unit weights) in
 ///   blocks; the default folds them one at a time;
+/// - optionally `static constexpr bool fusedRows = true` with `Status ingestRows(X, y, w)`:
+///   addRows in one pass (validate each block while folding it, commit only if every row is
+///   clean; same Status as the two-pass default), used when the guards are off and room suffices;
 /// - `std::uint64_t room() const`: how many more samples fit (capacity-bound estimators);
 /// - `void clearState()`;
 /// - `bool factorize(Workspace&) const`: fill R, z, rho, b, intercept, means, W, SST;
@@ -230,6 +241,8 @@ class EstimatorBase {
   /// Cost: O(n K) validation (one vectorized pass; row by row only to report a bad row) + n
   /// times the estimator's update; unguarded GivensQr and NormalEquations fold in blocks
   /// (merged with the pairwise centering update; equal to row-by-row folding up to rounding).
+  /// Unguarded NormalEquations reads the rows once: it validates each block in cache as it
+  /// folds it into a call accumulator, merged into the state at the end (`fusedRows`).
   /// Never allocates.
   template <typename XD, typename YD>
   Status addRows(const Eigen::MatrixBase<XD>& X, const Eigen::MatrixBase<YD>& y) {
@@ -1058,6 +1071,29 @@ class EstimatorBase {
     }
   }
 
+  /// True if rows [from, to) of X, y (and w) are finite and no weight is negative: one
+  /// vectorized pass (x * 0 is 0 for finite x, NaN otherwise).
+  template <typename XD, typename YD, typename WD>
+  static bool cleanRows(const Eigen::MatrixBase<XD>& X, const Eigen::MatrixBase<YD>& y, const WD* w, Eigen::Index from,
+                        Eigen::Index to) {
+    const Eigen::Index m = to - from;
+    if (m <= 0) return true;
+    return allFiniteFast(X.middleRows(from, m)) && allFiniteFast(y.segment(from, m)) &&
+           (w == nullptr || (allFiniteFast(w->segment(from, m)) && !(w->segment(from, m).minCoeff() < 0)));
+  }
+
+  /// The Status of the first row from `from` on that add() would reject (`ok` if none), checked
+  /// row by row; X, y, w have the right sizes.
+  template <typename XD, typename YD, typename WD>
+  Status firstReject(const Eigen::MatrixBase<XD>& X, const Eigen::MatrixBase<YD>& y, const WD* w, Eigen::Index from) const {
+    for (Eigen::Index i = from; i < X.rows(); ++i) {
+      const Scalar wi = w != nullptr ? Scalar((*w)(i)) : Scalar(1);
+      const Status s = check(X.row(i).transpose(), Scalar(y(i)), wi);
+      if (s != Status::ok) return s;
+    }
+    return Status::ok;
+  }
+
  private:
 
   template <typename XD, typename YD, typename WD>
@@ -1069,13 +1105,14 @@ class EstimatorBase {
     // Every row is validated before anything is folded. One vectorized pass over everything
     // first (x * 0 is 0 for finite x, NaN otherwise); only when it finds a bad value does the
     // row-by-row pass run to report the first offending row's Status.
-    const bool clean = allFiniteFast(X) && allFiniteFast(y) && (w == nullptr || (allFiniteFast(*w) && !(w->minCoeff() < 0)));
-    if (!clean) {
-      for (Eigen::Index i = 0; i < n; ++i) {
-        const Scalar wi = w != nullptr ? Scalar((*w)(i)) : Scalar(1);
-        const Status s = check(X.row(i).transpose(), Scalar(y(i)), wi);
-        if (s != Status::ok) return s;
-      }
+    if constexpr (detail::FusedRows<Derived>::value) {
+      // One pass: the estimator validates each block in cache as it folds it into a call
+      // accumulator, and merges that into its state only when every row was clean.
+      if (!m_guarded && derived().room() >= static_cast<std::uint64_t>(n)) return derived().ingestRows(X, y, w);
+    }
+    if (!cleanRows(X, y, w, 0, n)) {
+      const Status s = firstReject(X, y, w, 0);
+      if (s != Status::ok) return s;
     }
     if (derived().room() < static_cast<std::uint64_t>(n)) return Status::capacity_full;
     if (!m_guarded) {

@@ -5,7 +5,7 @@
 #include <limits>
 
 #include "rowfold/detail/cholesky.hpp"
-#include "rowfold/detail/row_block.hpp"
+#include "rowfold/detail/gram_block.hpp"
 #include "rowfold/estimator_base.hpp"
 
 namespace rowfold {
@@ -18,13 +18,17 @@ struct NormalEquationsOptions : FitOptions {};
 /// 1962 / West 1979 in matrix form; NUMERICS §4.1). At solve time the Cholesky factor of the
 /// augmented G gives [R z; 0 rho] directly (R'R = M, R b = z, rho^2 = SSE); never an inverse.
 ///
-/// **Blocked ingestion (addRows):** rows are gathered in blocks of up to 64 (detail::RowBlock); per block
-/// the weighted block means (rows weighted by w lambda^age within the block) and the block's
-/// centered co-moments (one product of the centered block with itself) are formed, and the block
-/// is combined with the running state by the pairwise update of Chan, Golub & LeVeque (1983,
-/// Am. Stat. 37(3):242-247; NUMERICS §4.1, §5) under forgetting:
-/// G <- lambda^b G + G_B + (W_A W_B / W) (m_B - m_A)(m_B - m_A)', W_A = lambda^b W. Equal to
-/// row-by-row folding in exact arithmetic (tests/test_properties.cpp checks it to rounding).
+/// **Blocked ingestion (addRows):** rows are gathered in blocks of 16..256 (about 2048 scalars,
+/// detail::GramBlock); per block the weighted block means (rows weighted by w lambda^age within
+/// the block) and the block's centered co-moments (a register-blocked product of the centered
+/// block with itself) are formed, and the block is combined with the running co-moments by the
+/// pairwise update of Chan, Golub & LeVeque (1983, Am. Stat. 37(3):242-247; NUMERICS §4.1, §5)
+/// under forgetting: G <- lambda^b G + G_B + (W_A W_B / W) (m_B - m_A)(m_B - m_A)',
+/// W_A = lambda^b W. Unguarded addRows reads the rows once: each block is validated in cache
+/// and folded into a *call accumulator* (co-moments and centering of this call's rows only);
+/// the accumulator is merged into the state by the same update at the end, or dropped (state
+/// untouched) at the first bad block, whose rows are then checked one by one for the Status.
+/// Equal to row-by-row folding in exact arithmetic (tests/test_properties.cpp checks it to rounding).
 ///
 /// **Stability:** forming M squares the condition number: expect relative error ~ u kappa_s^2.
 /// Centering removes the worst of it (the intercept column), so it is fine for well-conditioned
@@ -44,8 +48,8 @@ struct NormalEquationsOptions : FitOptions {};
 /// working precision) gives a zero row, which the solve reports as `rank_deficient`. Inputs
 /// whose squares overflow make the factor non-finite: `not_available` with `near_singular`.
 ///
-/// Scratch: a block of up to 64 rows, about 1024 scalars (detail::RowBlock; allocated at
-/// construction for Eigen::Dynamic).
+/// Scratch: a block of rows, about 2048 scalars (detail::GramBlock), and the call accumulator,
+/// (K+1)^2 + 2K scalars (allocated at construction for Eigen::Dynamic).
 template <typename Scalar_, int K_, int MaxK_ = K_>
 class NormalEquations : public EstimatorBase<NormalEquations<Scalar_, K_, MaxK_>, Scalar_, K_, MaxK_> {
   using Base = EstimatorBase<NormalEquations<Scalar_, K_, MaxK_>, Scalar_, K_, MaxK_>;
@@ -65,6 +69,7 @@ class NormalEquations : public EstimatorBase<NormalEquations<Scalar_, K_, MaxK_>
   static constexpr bool guardable = true;  ///< the windup guard and outlier gate apply
   static constexpr bool positionalAges = false;  ///< ages live in the state: addDelayed/advance are exact
   static constexpr bool deferredCentering = false;  ///< folds at once (see EstimatorBase::syncCentering)
+  static constexpr bool fusedRows = true;  ///< addRows validates and folds in one pass (ingestRows)
 
   /// Fixed K. status() reports invalid options; see EstimatorBase::status().
   explicit NormalEquations(const Options& options = Options())
@@ -72,9 +77,12 @@ class NormalEquations : public EstimatorBase<NormalEquations<Scalar_, K_, MaxK_>
   /// Runtime K (any K > 0 for Eigen::Dynamic; must equal K otherwise, else status() is
   /// `wrong_size`). Allocates the co-moment matrix for Eigen::Dynamic K, nothing later.
   NormalEquations(Eigen::Index k, const Options& options)
-      : Base(k, options), m_gram(k + 1, k + 1), m_block(k), m_u(k + 1) {
+      : Base(k, options), m_gram(k + 1, k + 1), m_call(k + 1, k + 1), m_callCentering(k), m_block(k), m_u(k + 1),
+        m_diff(k + 1) {
     m_gram.setZero();
+    m_call.setZero();
     m_u.setZero();
+    m_diff.setZero();
   }
 
   /// The augmented co-moment matrix G = [M m; m' Syy] ((K+1) x (K+1), lower triangle valid).
@@ -120,37 +128,52 @@ class NormalEquations : public EstimatorBase<NormalEquations<Scalar_, K_, MaxK_>
   template <typename XD, typename YD, typename WD>
   void foldRows(const Eigen::MatrixBase<XD>& X, const Eigen::MatrixBase<YD>& y, const WD* w) {
     Eigen::Index i = 0;
-    for (Eigen::Index nb; (nb = m_block.gather(X, y, w, i)) > 0;) foldBlock(nb);
+    for (Eigen::Index nb; (nb = m_block.gather(X, y, w, i)) > 0;)
+      m_block.fold(nb, w != nullptr, this->lambda(), this->interceptMode(), this->centeringState(), m_gram);
   }
 
-  /// G <- lambda^b G + c diff diff' + Z' diag(omega) Z for the block's centered rows Z.
-  void foldBlock(Eigen::Index nb) {
-    const Eigen::Index n = m_gram.cols();
-    const auto mg = m_block.prepare(nb, this->lambda(), this->interceptMode(), this->centeringState());
-    const auto& z = m_block.rows();
-    const auto& diff = m_block.diff();
-    Scalar* const g = m_gram.data();
-    if (mg.ageing != Scalar(1) || mg.weight != Scalar(0)) {
-      for (Eigen::Index j = 0; j < n; ++j) {
-        Scalar* __restrict gj = g + j * n;
-        const Scalar a = mg.weight * diff(j);
-        for (Eigen::Index i = j; i < n; ++i) gj[i] = mg.ageing * gj[i] + a * diff(i);
+  /// One-pass addRows (sizes checked, guards off; see the class comment): the Status of the
+  /// first bad row with the state untouched, else `ok` with every row folded.
+  template <typename XD, typename YD, typename WD>
+  Status ingestRows(const Eigen::MatrixBase<XD>& X, const Eigen::MatrixBase<YD>& y, const WD* w) {
+    const Intercept mode = this->interceptMode();
+    const Scalar lambda = this->lambda();
+    m_call.template triangularView<Eigen::Lower>().setZero();
+    m_callCentering.reset();
+    Scalar age = Scalar(1);
+    for (Eigen::Index i = 0, i0 = 0; i < X.rows(); i0 = i) {
+      const Eigen::Index nb = m_block.gather(X, y, w, i);
+      if (w == nullptr) m_block.prefetch(X, y, i);  // the next block, while this one is folded
+      // The block is folded into the accumulator first and checked afterwards: with unit
+      // weights a NaN or Inf shows in the block's co-moment diagonal (no second look at the
+      // rows); with weights the raw rows are checked (zero-weight rows are not gathered but
+      // add() checks them too). On a hit, the row-by-row check from the block's first row gives
+      // the Status (squares that merely overflow find no bad row: folded, as row by row).
+      if (nb > 0) age *= m_block.fold(nb, w != nullptr, lambda, mode, m_callCentering, m_call);
+      if (w == nullptr ? !m_block.finite() : !Base::cleanRows(X, y, w, i0, i)) {
+        const Status s = this->firstReject(X, y, w, i0);
+        if (s != Status::ok) {
+          clearScratch();  // a refused call leaves no trace, in the scratch either
+          return s;
+        }
       }
     }
-    // Lower triangle of Z' diag(omega) Z as dot products over the block's rows (each column of
-    // the block is contiguous).
-    const auto om = m_block.weights().head(nb);
-    auto wz = m_block.tmp().head(nb);
-    for (Eigen::Index j = 0; j < n; ++j) {
-      Scalar* gj = g + j * n;
-      if (mg.unit) {
-        const auto zj = z.col(j).head(nb);
-        for (Eigen::Index i = j; i < n; ++i) gj[i] += zj.dot(z.col(i).head(nb));
-      } else {
-        wz = om.cwiseProduct(z.col(j).head(nb));
-        for (Eigen::Index i = j; i < n; ++i) gj[i] += wz.dot(z.col(i).head(nb));
-      }
-    }
+    const auto& cc = m_callCentering;
+    if (cc.count() == 0) return Status::ok;
+    const Eigen::Index k = this->regressors();
+    m_u.head(k) = cc.xMean();
+    m_u(k) = cc.yMean();
+    const Scalar c = this->centeringState().mergeBlock(age, age * age, cc.weightSum(), m_u, cc.yySum(),
+                                                       cc.forgetSum(), cc.forgetSum2(), cc.count(), mode, m_diff);
+    detail::GramBlock<Scalar, K_, MaxK_>::combine(m_gram, age, c, m_diff, m_call);
+    return Status::ok;
+  }
+
+  /// The addRows scratch back to its contents of construction.
+  void clearScratch() {
+    m_call.setZero();
+    m_callCentering.reset();
+    m_block.clear();
   }
 
   Status canMerge(const NormalEquations&) const { return Status::ok; }
@@ -224,8 +247,11 @@ class NormalEquations : public EstimatorBase<NormalEquations<Scalar_, K_, MaxK_>
   }
 
   typename Dims::Matrix1 m_gram;
-  detail::RowBlock<Scalar, K_, MaxK_> m_block;  // addRows scratch
-  Vector1 m_u;                                  // add: the scaled centered row
+  typename Dims::Matrix1 m_call;                   // addRows scratch: this call's co-moments
+  Centering<Scalar, K_, MaxK_> m_callCentering;    // addRows scratch: this call's means and sums
+  detail::GramBlock<Scalar, K_, MaxK_> m_block;    // addRows scratch: one block of rows
+  Vector1 m_u;                                     // add: the scaled centered row; addRows: call means
+  Vector1 m_diff;                                  // addRows: call means - running means
   mutable Scalar m_lastSse = 0;                 // scratch of the guarded path, not state
 };
 

@@ -13,6 +13,25 @@
 
 namespace rowfold::detail {
 
+/// Copies rows of nonzero weight from row `i` on into the rows of `z` ([x y]) and `omega` (their
+/// weights), at most `cap` of them, advancing `i` past every row read; returns how many.
+template <typename XD, typename YD, typename WD, typename ZD, typename OD>
+Eigen::Index gatherWeighted(const Eigen::MatrixBase<XD>& X, const Eigen::MatrixBase<YD>& y, const WD& w, Eigen::Index& i,
+                            Eigen::Index cap, Eigen::MatrixBase<ZD>& z, Eigen::MatrixBase<OD>& omega) {
+  using Scalar = typename ZD::Scalar;
+  const Eigen::Index k = X.cols(), rows = X.rows();
+  Eigen::Index nb = 0;
+  for (; i < rows && nb < cap; ++i) {
+    const Scalar wi = Scalar(w(i));
+    if (wi == Scalar(0)) continue;
+    z.row(nb).head(k) = X.row(i);
+    z(nb, k) = Scalar(y(i));
+    omega(nb) = wi;
+    ++nb;
+  }
+  return nb;
+}
+
 /// Scratch for one block of rows [x y] (column-major, so each column of the block is
 /// contiguous) and their weights. Sized once at construction (about 1024 scalars).
 template <typename Scalar, int K, int MaxK>
@@ -69,15 +88,7 @@ class RowBlock {
       i += nb;
       return nb;
     }
-    for (; i < rows && nb < cap; ++i) {
-      const Scalar wi = Scalar((*w)(i));
-      if (wi == Scalar(0)) continue;
-      m_z.row(nb).head(k) = X.row(i);
-      m_z(nb, k) = Scalar(y(i));
-      m_omega(nb) = wi;
-      ++nb;
-    }
-    return nb;
+    return gatherWeighted(X, y, *w, i, cap, m_z, m_omega);
   }
 
   /// Weights the nb gathered rows by lambda^age (age nb-1-r for row r at the end of the block),

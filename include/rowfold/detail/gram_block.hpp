@@ -1,0 +1,292 @@
+/// @file
+/// NormalEquations' blocked ingestion: gathers a block of rows, validates it in cache, centers
+/// it on its own weighted means and forms its co-moments with a register-blocked kernel.
+#pragma once
+
+#include <Eigen/Core>
+#include <cstdint>
+#include <type_traits>
+
+#include "rowfold/centering.hpp"
+#include "rowfold/detail/dims.hpp"
+#include "rowfold/detail/row_block.hpp"
+#include "rowfold/options.hpp"
+
+namespace rowfold::detail {
+
+/// Lower triangle of Z' diag(omega) Z (or Z'Z) for a column-major block Z whose row count `len`
+/// is a multiple of the packet size (padding rows are zero). Tiles of 2 x 4 dot products share
+/// their column loads (2 + 4 loads per 8 multiply-adds, as in the register-blocked kernels of
+/// Goto & van de Geijn 2008, ACM TOMS 34(3)); each entry is written once.
+template <typename Scalar>
+struct GramKernel {
+  using Packet = typename Eigen::internal::packet_traits<Scalar>::type;
+  static constexpr int kWidth = Eigen::internal::unpacket_traits<Packet>::size;
+
+  /// g(i, j) = sum_r omega_r z(r, j) z(r, i) for i >= j, j < n (ld: leading dimension of z,
+  /// an Eigen::Index or a std::integral_constant for a compile-time stride; ldg: that of g).
+  /// Column pairs against row chunks of at most 6 (2 x 6 tiles: 12 accumulators + 3 loads in
+  /// 16 SSE registers), chunks of even size so that no short tile waits on its adder's latency;
+  /// an odd n ends with a 3 x 3 tile.
+  template <bool Weighted, typename Ld>
+  static void lower(const Scalar* z, Ld ld, const Scalar* om, Eigen::Index len, Eigen::Index n, Scalar* g,
+                    Eigen::Index ldg) {
+    if (n == 1) return tile<1, 1, Weighted>(z, ld, om, len, 0, 0, g, ldg);
+    Eigen::Index j = 0;
+    for (; n - j > 3 || n - j == 2; j += 2) {
+      const Eigen::Index rest = n - j, chunks = (rest + 5) / 6;
+      for (Eigen::Index c = 0, i = j; c < chunks; ++c) {
+        const Eigen::Index len_c = (rest - (i - j) + (chunks - c) - 1) / (chunks - c);
+        switch (len_c) {
+          case 1: tile<2, 1, Weighted>(z, ld, om, len, j, i, g, ldg); break;
+          case 2: tile<2, 2, Weighted>(z, ld, om, len, j, i, g, ldg); break;
+          case 3: tile<2, 3, Weighted>(z, ld, om, len, j, i, g, ldg); break;
+          case 4: tile<2, 4, Weighted>(z, ld, om, len, j, i, g, ldg); break;
+          case 5: tile<2, 5, Weighted>(z, ld, om, len, j, i, g, ldg); break;
+          default: tile<2, 6, Weighted>(z, ld, om, len, j, i, g, ldg); break;
+        }
+        i += len_c;
+      }
+    }
+    if (n - j == 3) tile<3, 3, Weighted>(z, ld, om, len, j, j, g, ldg);
+  }
+
+  /// out(j) = sum of column j over the first `len` rows (a multiple of the packet size), four
+  /// columns per pass: independent adders instead of one latency-bound chain per column.
+  template <typename Ld, typename V>
+  static void columnSums(const Scalar* z, Ld ld, Eigen::Index len, Eigen::Index n, V& out) {
+    using namespace Eigen::internal;
+    Eigen::Index j = 0;
+    for (; j + 4 <= n; j += 4) {
+      Packet s0 = pset1<Packet>(Scalar(0)), s1 = s0, s2 = s0, s3 = s0;
+      const Scalar* c = z + j * ld;
+      for (Eigen::Index r = 0; r < len; r += kWidth) {
+        s0 = padd(s0, ploadu<Packet>(c + r));
+        s1 = padd(s1, ploadu<Packet>(c + ld + r));
+        s2 = padd(s2, ploadu<Packet>(c + 2 * ld + r));
+        s3 = padd(s3, ploadu<Packet>(c + 3 * ld + r));
+      }
+      out(j) = predux(s0);
+      out(j + 1) = predux(s1);
+      out(j + 2) = predux(s2);
+      out(j + 3) = predux(s3);
+    }
+    for (; j < n; ++j) {
+      Packet s0 = pset1<Packet>(Scalar(0)), s1 = s0;
+      const Scalar* c = z + j * ld;
+      Eigen::Index r = 0;
+      for (; r + 2 * kWidth <= len; r += 2 * kWidth) {
+        s0 = padd(s0, ploadu<Packet>(c + r));
+        s1 = padd(s1, ploadu<Packet>(c + r + kWidth));
+      }
+      if (r < len) s0 = padd(s0, ploadu<Packet>(c + r));
+      out(j) = predux(padd(s0, s1));
+    }
+  }
+
+ private:
+  template <int MR, int NR, bool Weighted, typename Ld>
+  static void tile(const Scalar* z, Ld ld, const Scalar* om, Eigen::Index len, Eigen::Index j0,
+                   Eigen::Index i0, Scalar* g, Eigen::Index ldg) {
+    using namespace Eigen::internal;
+    Packet acc[MR][NR];
+    for (int m = 0; m < MR; ++m)
+      for (int q = 0; q < NR; ++q) acc[m][q] = pset1<Packet>(Scalar(0));
+    const Scalar* a0 = z + j0 * ld;
+    const Scalar* b0 = z + i0 * ld;
+    for (Eigen::Index r = 0; r < len; r += kWidth) {
+      Packet a[MR], b[NR];
+      for (int m = 0; m < MR; ++m) a[m] = ploadu<Packet>(a0 + m * ld + r);
+      if constexpr (Weighted) {
+        const Packet w = ploadu<Packet>(om + r);
+        for (int m = 0; m < MR; ++m) a[m] = pmul(a[m], w);
+      }
+      for (int q = 0; q < NR; ++q) b[q] = ploadu<Packet>(b0 + q * ld + r);
+      for (int m = 0; m < MR; ++m)
+        for (int q = 0; q < NR; ++q) acc[m][q] = pmadd(a[m], b[q], acc[m][q]);
+    }
+    for (int m = 0; m < MR; ++m)
+      for (int q = 0; q < NR; ++q)
+        if (i0 + q >= j0 + m) g[(j0 + m) * ldg + i0 + q] = predux(acc[m][q]);
+  }
+};
+
+/// Scratch and steps of one block of rows [x y] for NormalEquations' addRows (column-major, each
+/// column contiguous; rows padded with zeros to the packet size). Sized once at construction.
+template <typename Scalar, int K, int MaxK>
+class GramBlock {
+  using D = Dims<Scalar, K, MaxK>;
+  static constexpr int kWidth = GramKernel<Scalar>::kWidth;
+  // Multiples of 16 rows: whole packets for every scalar and instruction set.
+  static constexpr int clampRows(int r) { return (r < 16 ? 16 : (r > 256 ? 256 : r)) / 16 * 16; }
+
+ public:
+  /// Rows per block for a compile-time bound on K: about 2048 scalars, 16..256 rows (multiple of 16).
+  static constexpr int kFixedRows = D::MaxK1 == Eigen::Dynamic ? Eigen::Dynamic : clampRows(2048 / D::MaxK1);
+  /// Unused rows after each column: the column stride is then no power of two (columns whose
+  /// addresses agree modulo 4 KiB slow the strided writes of `gather`).
+  static constexpr int kPad = 8;
+  using Block = Eigen::Matrix<Scalar, Eigen::Dynamic, D::K1, Eigen::ColMajor,
+                              kFixedRows == Eigen::Dynamic ? Eigen::Dynamic : kFixedRows + kPad, D::MaxK1>;
+  using Weights = Eigen::Matrix<Scalar, Eigen::Dynamic, 1, Eigen::ColMajor, kFixedRows, 1>;
+  using Vector1 = typename D::Vector1;
+  using Matrix1 = typename D::Matrix1;
+
+  static Eigen::Index rowsFor(Eigen::Index k) {
+    return D::MaxK1 != Eigen::Dynamic ? kFixedRows : clampRows(static_cast<int>(2048 / (k + 1)));
+  }
+
+  explicit GramBlock(Eigen::Index k)
+      : m_z(rowsFor(k) + kPad, k + 1), m_omega(rowsFor(k)), m_mean(k + 1), m_diff(k + 1), m_g(k + 1, k + 1) {
+    clear();
+  }
+
+  /// Back to the contents of construction (all zero).
+  void clear() {
+    m_z.setZero();
+    m_omega.setZero();
+    m_mean.setZero();
+    m_diff.setZero();
+    m_g.setZero();
+  }
+
+  /// Copies the next block of rows with nonzero weight from row `i` on (advancing `i` past every
+  /// row read, zero-weight ones included); returns the number gathered. Zero-weight rows are
+  /// skipped: like in `add`, they do not age the state.
+  template <typename XD, typename YD, typename WD>
+  Eigen::Index gather(const Eigen::MatrixBase<XD>& X, const Eigen::MatrixBase<YD>& y, const WD* w, Eigen::Index& i) {
+    const Eigen::Index k = X.cols(), cap = m_z.rows() - kPad, rows = X.rows();
+    const auto ld = stride();
+    Eigen::Index nb = 0;
+    if (w == nullptr) {
+      nb = rows - i < cap ? rows - i : cap;
+      // Row by row, in the source's order (a row-major X streams; the block's strided writes
+      // stay in L1). Reading down the columns instead waits on one cache miss per row.
+      Scalar* const z = m_z.data();
+      const Eigen::Index kk = K != Eigen::Dynamic ? Eigen::Index(K) : k;
+      for (Eigen::Index r = 0; r < nb; ++r) {
+        for (Eigen::Index j = 0; j < kk; ++j) z[j * ld + r] = X(i + r, j);
+        z[kk * ld + r] = Scalar(y(i + r));
+      }
+      i += nb;
+      return nb;
+    }
+    return gatherWeighted(X, y, *w, i, cap, m_z, m_omega);
+  }
+
+  /// Asks for rows [i, i + block) of a row-major X and of y ahead of `gather` (cache-line
+  /// prefetches, GCC/Clang), so that the next block streams in while this one is folded; a
+  /// no-op for other layouts and compilers.
+  template <typename XD, typename YD>
+  void prefetch(const Eigen::MatrixBase<XD>& X, const Eigen::MatrixBase<YD>& y, Eigen::Index i) const {
+#if defined(__GNUC__)
+    const Eigen::Index m = X.rows() - i < m_z.rows() - kPad ? X.rows() - i : m_z.rows() - kPad;
+    if (m <= 0) return;
+    constexpr Eigen::Index line = 64 / sizeof(Scalar);
+    if constexpr (bool(XD::Flags & Eigen::DirectAccessBit) && bool(XD::IsRowMajor)) {
+      const Scalar* p = X.derived().data() + i * X.derived().outerStride();
+      const Eigen::Index span = m * X.derived().outerStride();
+      for (Eigen::Index o = 0; o < span; o += line) __builtin_prefetch(p + o, 0, 3);
+    }
+    if constexpr (bool(YD::Flags & Eigen::DirectAccessBit) && std::is_same<typename YD::Scalar, Scalar>::value) {
+      const Scalar* q = y.derived().data() + i * y.derived().innerStride();
+      if (y.derived().innerStride() == 1)
+        for (Eigen::Index o = 0; o < m; o += line) __builtin_prefetch(q + o, 0, 3);
+    }
+#else
+    (void)X;
+    (void)y;
+    (void)i;
+#endif
+  }
+
+  /// After fold: false if the last block had a NaN or Inf (or squares that overflow): its
+  /// co-moment diagonal (sums of squares of the centered columns) is then not finite.
+  bool finite() const { return (m_g.diagonal().array() * Scalar(0)).sum() == Scalar(0); }
+
+  /// gram <- p gram + c diff diff' + add (lower triangles): the pairwise combination of
+  /// Chan, Golub & LeVeque (1983) with the co-moments `add` of the later part.
+  static void combine(Matrix1& gram, Scalar p, Scalar c, const Vector1& diff, const Matrix1& add) {
+    const Eigen::Index n = gram.cols();
+    Scalar* const a = gram.data();
+    const Scalar* const g = add.data();
+    for (Eigen::Index j = 0; j < n; ++j) {
+      Scalar* __restrict aj = a + j * n;
+      const Scalar* __restrict gj = g + j * n;
+      const Scalar cj = c * diff(j);
+      if (p != Scalar(1)) {
+        for (Eigen::Index i = j; i < n; ++i) aj[i] = p * aj[i] + cj * diff(i) + gj[i];
+      } else {
+        for (Eigen::Index i = j; i < n; ++i) aj[i] += cj * diff(i) + gj[i];
+      }
+    }
+  }
+
+  /// Folds the nb gathered rows into the co-moments `gram` (lower triangle) and `centering`
+  /// (pairwise update of Chan, Golub & LeVeque 1983, Am. Stat. 37(3):242-247, under forgetting;
+  /// NUMERICS §4.1, §5): rows weighted by w lambda^age within the block (age nb-1-r for row r),
+  /// centered on the block's weighted means, G <- lambda^nb G + c diff diff' + Z' diag(omega) Z.
+  /// Returns lambda^nb.
+  Scalar fold(Eigen::Index nb, bool weighted, Scalar lambda, Intercept mode, Centering<Scalar, K, MaxK>& centering,
+              Matrix1& gram) {
+    const Eigen::Index n = m_z.cols();
+    Scalar p = Scalar(1), f = Scalar(nb), f2 = Scalar(nb);
+    const bool unit = !weighted && lambda == Scalar(1);
+    if (!unit) {
+      if (!weighted) m_omega.head(nb).setOnes();
+      f = f2 = Scalar(0);
+      for (Eigen::Index r = nb - 1; r >= 0; --r) {
+        m_omega(r) *= p;
+        f += p;
+        f2 += p * p;
+        p *= lambda;
+      }
+    }
+    // Zero padding up to the packet size: the kernels run whole packets.
+    const Eigen::Index len = (nb + kWidth - 1) / kWidth * kWidth;
+    if (len > nb) {
+      m_z.middleRows(nb, len - nb).setZero();
+      m_omega.segment(nb, len - nb).setZero();
+    }
+    const auto om = m_omega.head(nb);
+    const Scalar wB = unit ? Scalar(nb) : om.sum();
+    if (mode == Intercept::fit) {
+      if (unit) GramKernel<Scalar>::columnSums(m_z.data(), stride(), len, n, m_mean);
+      for (Eigen::Index j = 0; j < n; ++j) {
+        auto zj = m_z.col(j).head(nb);
+        m_mean(j) = (unit ? m_mean(j) : om.dot(zj)) / wB;
+        zj.array() -= m_mean(j);
+      }
+    } else {
+      m_mean.setZero();
+    }
+    Scalar* const g = m_g.data();
+    if (unit) {
+      GramKernel<Scalar>::template lower<false>(m_z.data(), stride(), nullptr, len, n, g, n);
+    } else {
+      GramKernel<Scalar>::template lower<true>(m_z.data(), stride(), m_omega.data(), len, n, g, n);
+    }
+    const Scalar c = centering.mergeBlock(p, p * p, wB, m_mean, m_g(n - 1, n - 1), f, f2,
+                                          static_cast<std::uint64_t>(nb), mode, m_diff);
+    combine(gram, p, c, m_diff, m_g);
+    return p;
+  }
+
+ private:
+  /// Column stride of the block: a compile-time constant for a compile-time bound on K (one base
+  /// register and constant offsets address every column).
+  auto stride() const {
+    if constexpr (kFixedRows != Eigen::Dynamic) {
+      return std::integral_constant<Eigen::Index, kFixedRows + kPad>();
+    } else {
+      return m_z.rows();
+    }
+  }
+
+  Block m_z;
+  Weights m_omega;
+  Vector1 m_mean, m_diff;
+  Matrix1 m_g;
+};
+
+}  // namespace rowfold::detail
