@@ -235,8 +235,12 @@ TEST_CASE_TEMPLATE("NIST StRD certified values through GivensQr::addRows (every 
       CHECK((g.flags.has(Flag::near_singular) || g.flags.has(Flag::ill_conditioned)));
     }
     if (!isFloat && setName != "Filip") {
-      CHECK(g.sd >= 10);
-      CHECK(g.resSd >= 10);
+      // Wampler1 is an exact fit (certified residual SD 0): its SD LREs measure the absolute
+      // rounding noise of the residual, where Householder QR sits near 10 (NUMERICS §8 table:
+      // 9.8 for a textbook Householder QR; 10.0 here, 10.2 folding row by row).
+      const double sdMin = setName == "Wampler1" ? 9.5 : 10;
+      CHECK(g.sd >= sdMin);
+      CHECK(g.resSd >= sdMin);
       CHECK(g.r2 >= 10);
     }
     if (!isFloat && setName == "Filip") CHECK_FALSE(g.flags.has(Flag::rank_deficient));
