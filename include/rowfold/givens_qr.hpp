@@ -7,6 +7,7 @@
 #include <type_traits>
 
 #include "rowfold/detail/givens.hpp"
+#include "rowfold/detail/householder_block.hpp"
 #include "rowfold/detail/row_block.hpp"
 #include "rowfold/estimator_base.hpp"
 
@@ -42,6 +43,13 @@ struct GivensQrOptions : FitOptions {};
 /// solve = forming the explicit factor (K^2/2) + one back substitution (K^2/2);
 /// summarize/conditioning O(K^3). State: (K+1)(K+2)/2 scalars (d and Rbar, stored as a full
 /// row-major (K+1)^2 matrix) + centering.
+///
+/// **Blocked ingestion (addRows):** the state is turned into the explicit factor once per call,
+/// each block of rows (detail::RowBlock: centered on its means, plus the mean-difference row) is
+/// folded by one Householder QR of the factor stacked on the block (the TSQR step, NUMERICS §5;
+/// detail/householder_block.hpp), ~ (K+1)^2 multiply-adds per row along contiguous columns, and
+/// the result is turned back at the end. Normwise backward stable like the rotations; the same
+/// fit to rounding (not bit for bit).
 ///
 /// **Status and flags:** those of EstimatorBase (remove() adds `not_definite`); no capacity
 /// limit (`capacity_full` never occurs) and no flags of its own. With lambda = 1 in float32,
@@ -94,10 +102,12 @@ class GivensQr : public EstimatorBase<GivensQr<Scalar_, K_, MaxK_>, Scalar_, K_,
         m_x(stride(k + 1)),
         m_rld(k + 1),
         m_block(k),
+        m_wide(k + 1 >= kWide ? detail::RowBlock<Scalar, K_, MaxK_>::rowsFor(k) + 1 : 0, k + 1 >= kWide ? k + 1 : 0),
         m_factor(k + 1, k + 1) {
     m_state.setZero();
     m_x.setZero();
     m_rld.setZero();
+    m_wide.setZero();
     m_factor.setZero();
   }
 
@@ -242,21 +252,42 @@ class GivensQr : public EstimatorBase<GivensQr<Scalar_, K_, MaxK_>, Scalar_, K_,
   }
 
   /// Blocked addRows (rows already validated): per block the rows are centered on the block's
-  /// weighted means, the state is aged by lambda^b once, the centered rows are folded with their
-  /// weights w lambda^age, and the mean difference is folded as one more row of weight
-  /// W_A W_B / W' (the factored form of the pairwise update of Chan, Golub & LeVeque 1983;
-  /// NUMERICS §5 "Centered merge"). Equal to row-by-row folding in exact arithmetic.
+  /// weighted means, the state is aged by lambda^b once, and the centered rows (weights
+  /// w lambda^age) and the mean difference (weight W_A W_B / W', the factored form of the
+  /// pairwise update of Chan, Golub & LeVeque 1983; NUMERICS §5 "Centered merge") are folded
+  /// together by one Householder QR of [sqrt(lambda^b) F; diag(sqrt(omega)) Z; sqrt(W_A W_B / W') diff']
+  /// with F = [R z; 0 rho] (detail::foldBlockHouseholder: the stacked-triangle step of TSQR).
+  /// The square-root-free state is turned into F once per call and back once at the end (one
+  /// rounding each, however many blocks). Equal to row-by-row folding in exact arithmetic.
   template <typename XD, typename YD, typename WD>
   void foldRows(const Eigen::MatrixBase<XD>& X, const Eigen::MatrixBase<YD>& y, const WD* w) {
-    Eigen::Index i = 0;
-    for (Eigen::Index nb; (nb = m_block.gather(X, y, w, i)) > 0;) {
+    Eigen::Index i = 0, nb = m_block.gather(X, y, w, i);
+    if (nb == 0) return;
+    formFactor();
+    const Eigen::Index n = m_state.rows();
+    for (; nb > 0; nb = m_block.gather(X, y, w, i)) {
       const auto mg = m_block.prepare(nb, this->lambda(), this->interceptMode(), this->centeringState());
-      ageDiagonal(0, mg.ageing);
-      const auto& z = m_block.rows();
-      const auto& om = m_block.weights();
-      for (Eigen::Index r = 0; r < nb; ++r) foldCentered(z.row(r).transpose(), om(r), Scalar(1));
-      if (mg.weight > Scalar(0)) foldCentered(m_block.diff(), mg.weight, Scalar(1));
+      if (mg.ageing != Scalar(1)) m_factor.template triangularView<Eigen::Upper>() *= std::sqrt(mg.ageing);
+      auto& z = m_block.rows();
+      const Scalar extra = mg.weight > Scalar(0) ? std::sqrt(mg.weight) : Scalar(0);
+      auto root = m_block.tmp().head(nb);
+      if (!mg.unit) root = m_block.weights().head(nb).cwiseSqrt();
+      if (n >= kWide) {  // few rows per block: fold them row-major (see foldRowsHouseholder)
+        if (mg.unit)
+          m_wide.topRows(nb) = z.topRows(nb);
+        else
+          m_wide.topRows(nb) = root.asDiagonal() * z.topRows(nb);
+        m_wide.row(nb) = extra * m_block.diff().transpose();
+        detail::foldRowsHouseholder(m_factor, m_wide.data(), extra > Scalar(0) ? nb + 1 : nb, m_wide.cols(),
+                                    m_x.data());
+        continue;
+      }
+      if (!mg.unit)
+        for (Eigen::Index j = 0; j < n; ++j) z.col(j).head(nb).array() *= root.array();
+      if (extra > Scalar(0)) m_x.head(n) = extra * m_block.diff();
+      detail::foldBlockHouseholder(m_factor, z.data(), nb, z.rows(), extra > Scalar(0) ? m_x.data() : nullptr);
     }
+    takeFactor();
   }
 
   /// Folds the centered row d with weight delta (Gentleman 1973; see the class comment).
@@ -409,6 +440,15 @@ class GivensQr : public EstimatorBase<GivensQr<Scalar_, K_, MaxK_>, Scalar_, K_,
   }
 
   static constexpr Eigen::Index kRowBlock = 4;
+  // addRows: from this many columns (K + 1) on, a block (then at most 1024 / kWide rows) is
+  // folded row-major (measured: the column-major inner products are too short there).
+  static constexpr int kWide = 24;
+  static constexpr bool kNoWide = Dims::MaxK1 != Eigen::Dynamic && Dims::MaxK1 < kWide;
+  static constexpr int kWideRows = detail::RowBlock<Scalar, K_, MaxK_>::kFixedRows == Eigen::Dynamic
+                                       ? Eigen::Dynamic
+                                       : detail::RowBlock<Scalar, K_, MaxK_>::kFixedRows + 1;
+  using WideRows = Eigen::Matrix<Scalar, Eigen::Dynamic, Eigen::Dynamic, Eigen::RowMajor, kNoWide ? 2 : kWideRows,
+                                 kNoWide ? 2 : Dims::MaxK1>;
   // Range of delta b^2 that needs no rescaling: u^-2 .. u^2 away from the limits.
   static constexpr Scalar kHigh = std::numeric_limits<Scalar>::max() * std::numeric_limits<Scalar>::epsilon() *
                                   std::numeric_limits<Scalar>::epsilon();
@@ -487,7 +527,7 @@ class GivensQr : public EstimatorBase<GivensQr<Scalar_, K_, MaxK_>, Scalar_, K_,
     foldCentered(correction, Scalar(1), Scalar(1));
   }
 
-  /// Square-root-free state from the explicit factor in m_factor (after a downdate):
+  /// Square-root-free state from the explicit factor in m_factor (after a downdate or addRows):
   /// d_i = R_ii^2 (in the power-of-4 scale that keeps the largest in range), rbar_ij = R_ij/R_ii.
   void takeFactor() {
     const Eigen::Index n = m_state.rows();
@@ -529,6 +569,7 @@ class GivensQr : public EstimatorBase<GivensQr<Scalar_, K_, MaxK_>, Scalar_, K_,
   Vector1 m_rld;               // 1/(lambda d_i) during a fold
   Scalar m_scale = Scalar(1);  // power of 4: the stored d are d * m_scale
   detail::RowBlock<Scalar, K_, MaxK_> m_block;  // addRows scratch
+  WideRows m_wide;                                 // addRows scratch, row-major (K + 1 >= kWide only)
   mutable typename Dims::Matrix1 m_factor;  // explicit factor, formed on demand
 };
 
