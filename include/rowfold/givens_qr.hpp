@@ -107,7 +107,7 @@ class GivensQr : public EstimatorBase<GivensQr<Scalar_, K_, MaxK_>, Scalar_, K_,
     m_state.setZero();
     m_x.setZero();
     m_rld.setZero();
-    m_wide.setZero();
+    if constexpr (!kNoWide) m_wide.setZero();  // empty otherwise (g++ 12 misreads its bound)
     m_factor.setZero();
   }
 
@@ -272,15 +272,17 @@ class GivensQr : public EstimatorBase<GivensQr<Scalar_, K_, MaxK_>, Scalar_, K_,
       const Scalar extra = mg.weight > Scalar(0) ? std::sqrt(mg.weight) : Scalar(0);
       auto root = m_block.tmp().head(nb);
       if (!mg.unit) root = m_block.weights().head(nb).cwiseSqrt();
-      if (n >= kWide) {  // few rows per block: fold them row-major (see foldRowsHouseholder)
-        if (mg.unit)
-          m_wide.topRows(nb) = z.topRows(nb);
-        else
-          m_wide.topRows(nb) = root.asDiagonal() * z.topRows(nb);
-        m_wide.row(nb) = extra * m_block.diff().transpose();
-        detail::foldRowsHouseholder(m_factor, m_wide.data(), extra > Scalar(0) ? nb + 1 : nb, m_wide.cols(),
-                                    m_x.data());
-        continue;
+      if constexpr (!kNoWide) {  // a compile-time bound below kWide never takes this branch
+        if (n >= kWide) {  // few rows per block: fold them row-major (see foldRowsHouseholder)
+          if (mg.unit)
+            m_wide.topRows(nb) = z.topRows(nb);
+          else
+            m_wide.topRows(nb) = root.asDiagonal() * z.topRows(nb);
+          m_wide.row(nb) = extra * m_block.diff().transpose();
+          detail::foldRowsHouseholder(m_factor, m_wide.data(), extra > Scalar(0) ? nb + 1 : nb, m_wide.cols(),
+                                      m_x.data());
+          continue;
+        }
       }
       if (!mg.unit)
         for (Eigen::Index j = 0; j < n; ++j) z.col(j).head(nb).array() *= root.array();
