@@ -1082,11 +1082,13 @@ class EstimatorBase {
            (w == nullptr || (allFiniteFast(w->segment(from, m)) && !(w->segment(from, m).minCoeff() < 0)));
   }
 
-  /// The Status of the first row from `from` on that add() would reject (`ok` if none), checked
-  /// row by row; X, y, w have the right sizes.
+  /// The Status of the first row in [from, to) (to < 0: to the end) that add() would reject
+  /// (`ok` if none), checked row by row; X, y, w have the right sizes.
   template <typename XD, typename YD, typename WD>
-  Status firstReject(const Eigen::MatrixBase<XD>& X, const Eigen::MatrixBase<YD>& y, const WD* w, Eigen::Index from) const {
-    for (Eigen::Index i = from; i < X.rows(); ++i) {
+  Status firstReject(const Eigen::MatrixBase<XD>& X, const Eigen::MatrixBase<YD>& y, const WD* w, Eigen::Index from,
+                     Eigen::Index to = -1) const {
+    if (to < 0) to = X.rows();
+    for (Eigen::Index i = from; i < to; ++i) {
       const Scalar wi = w != nullptr ? Scalar((*w)(i)) : Scalar(1);
       const Status s = check(X.row(i).transpose(), Scalar(y(i)), wi);
       if (s != Status::ok) return s;

@@ -151,7 +151,7 @@ class NormalEquations : public EstimatorBase<NormalEquations<Scalar_, K_, MaxK_>
       // the Status (squares that merely overflow find no bad row: folded, as row by row).
       if (nb > 0) age *= m_block.fold(nb, w != nullptr, lambda, mode, m_callCentering, m_call);
       if (w == nullptr ? !m_block.finite() : !Base::cleanRows(X, y, w, i0, i)) {
-        const Status s = this->firstReject(X, y, w, i0);
+        const Status s = this->firstReject(X, y, w, i0, i);  // this block only: later ones are checked in turn
         if (s != Status::ok) {
           clearScratch();  // a refused call leaves no trace, in the scratch either
           return s;
