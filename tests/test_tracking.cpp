@@ -310,6 +310,48 @@ TEST_CASE("variable forgetting and the change alarm re-converge faster after a s
   CHECK(alarm * 3 < fixed);
 }
 
+// An inert guard (information gate and floor off; in the second pass also an outlier gate that
+// never fires, so the normalized error and its scale are formed) decides nothing, so the guarded
+// path must fold exactly what the plain path folds: the same bits. This pins the guarded fold's
+// reuse of priorInfo's work (ForgettingRls takes its gain P d from the gate's leverage).
+TEST_CASE_TEMPLATE("guards: an inert guard folds bit for bit what the plain path folds", E,
+                   rowfold::ForgettingRls<double, 3>, rowfold::ForgettingRls<float, 3>,
+                   rowfold::ForgettingRls<double, Eigen::Dynamic>, rowfold::GivensQr<double, 3>,
+                   rowfold::NormalEquations<float, 3>) {
+  using S = typename E::Scalar;
+  using V = Eigen::Matrix<S, 3, 1>;
+  for (int pass = 0; pass < 2; ++pass) {
+    CAPTURE(pass);
+    typename E::Options plain;
+    plain.forgetting = 0.97;
+    plain.windup.enabled = false;
+    typename E::Options inert = plain;
+    inert.windup.enabled = true;
+    inert.windup.informationGate = 0;
+    inert.windup.spreadFloor = 0;
+    if (pass == 1) {
+      inert.outliers.enabled = true;
+      inert.outliers.threshold = 1e6;
+    }
+    E a(3, plain), b(3, inert);
+    std::mt19937_64 rng(7);
+    std::normal_distribution<double> n01(0, 1);
+    for (int i = 0; i < 3000; ++i) {
+      const V x(S(n01(rng)), S(2 + n01(rng)), S(0.5 * n01(rng)));
+      const S y = S(1.5) * x(0) - x(1) + S(0.25) * x(2) + S(0.1 * n01(rng));
+      const S w = S(0.5 + (i % 3));
+      REQUIRE(a.add(x, y, w) == Status::ok);
+      REQUIRE(b.add(x, y, w) == Status::ok);
+    }
+    const auto sa = a.solve(), sb = b.solve();
+    REQUIRE(sa.status == Status::ok);
+    REQUIRE(sb.status == Status::ok);
+    for (int j = 0; j < 3; ++j) CHECK(sa.coefficients(j) == sb.coefficients(j));
+    CHECK(sa.intercept == sb.intercept);
+    CHECK(a.summarize().residualStandardError == b.summarize().residualStandardError);
+  }
+}
+
 TEST_CASE("guards: snapshots carry the guard state (bit-identical continuation) and bad options are refused") {
   rowfold::ForgettingRlsOptions o;
   o.forgetting = 0.98;

@@ -681,6 +681,10 @@ class EstimatorBase {
   Intercept interceptMode() const { return m_fit.intercept; }
   /// The shared query scratch (mutable: const queries write it; one thread at a time).
   WorkspaceType& work() const { return m_work; }
+  /// True only inside the fold that the guarded path makes right after `priorInfo` succeeded on
+  /// the same centered row m_row, with nothing changed in between: the estimator may reuse
+  /// what its priorInfo left in the workspace (ForgettingRls: the gain P d).
+  bool priorOnRow() const { return m_priorOnRow; }
 
   /// Default factor bookkeeping: means, W and SST from the centering.
   void fillCenteringFacts(WorkspaceType& ws) const {
@@ -863,8 +867,14 @@ class EstimatorBase {
       derived().storeRow(x, y, w);  // committed to the centering later, with lambda = lam (unguarded)
       return w;  // not the fold weight: deferred estimators have no guard, which alone reads it
     }
+    return foldStep(x, y, w, lam, m_centering.centeredRow(x, y, w, lam, m_fit.intercept, m_row));
+  }
+
+  /// fold() with m_row and its step already formed by centeredRow(x, y, w, lam).
+  template <typename XD>
+  Scalar foldStep(const Eigen::MatrixBase<XD>& x, Scalar y, Scalar w, Scalar lam,
+                  const typename Centering<Scalar, K, MaxK>::Step& step) {
     m_step = lam;
-    const auto step = m_centering.centeredRow(x, y, w, lam, m_fit.intercept, m_row);
     derived().foldRow(x, y, w, m_row, step.delta);
     m_centering.commitStep(step, lam, m_fit.intercept, m_row);
     m_step = m_lambda;
@@ -939,7 +949,8 @@ class EstimatorBase {
     // Leverage and prediction error of the unscaled centered row d (weight delta = c^2): both
     // are homogeneous in the row, so h = delta hx and e = c e_d without forming c (no square
     // root on the path to the gate's decision).
-    const Scalar deltaRow = m_centering.centeredRow(x, y, w, delayed ? one : m_lambda, m_fit.intercept, m_row).delta;
+    const auto step0 = m_centering.centeredRow(x, y, w, delayed ? one : m_lambda, m_fit.intercept, m_row);
+    const Scalar deltaRow = step0.delta;
     Scalar h = 0, ed = 0, q = 0, hxd = 0;
     const bool known =
         deltaRow > Scalar(0) && derived().priorInfo(m_row, hxd, ed) && std::isfinite(hxd) && std::isfinite(ed);
@@ -1022,7 +1033,14 @@ class EstimatorBase {
       m_step = m_lambda;
       m_centering.commit(x, y, weight, m_lambda, m_fit.intercept, m_row);
     } else {
-      delta = fold(x, y, weight, lam);  // m_row: the unscaled centered row, weight delta
+      // Nothing has changed the state or d since priorInfo (the lock-out path, which relaxes
+      // the state, returned above; Huber weight and step factor change delta, not d).
+      m_priorOnRow = known;
+      if (weight == w && lam == m_lambda)  // the common case: d and its step are already formed
+        delta = foldStep(x, y, w, lam, step0);
+      else
+        delta = fold(x, y, weight, lam);  // m_row: the unscaled centered row, weight delta
+      m_priorOnRow = false;
     }
     m_guard.foldSpread(lam, m_row.head(m_k), delta);
     if (lam < one && g.enabled && g.spreadFloor > 0.0 && known && supportFloor(static_cast<Scalar>(g.spreadFloor)))
@@ -1135,6 +1153,7 @@ class EstimatorBase {
   Scalar m_step;
   Status m_status = Status::ok;
   bool m_guarded = false;
+  bool m_priorOnRow = false;  // see priorOnRow(); false outside a guarded fold
   mutable Centering<Scalar, K, MaxK> m_centering;  // mutable: see deferredCentering
   GuardStateType m_guard;
   GuardCounters m_counters;

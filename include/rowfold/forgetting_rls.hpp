@@ -193,7 +193,11 @@ class ForgettingRls : public EstimatorBase<ForgettingRls<Scalar_, K_, MaxK_>, Sc
     // column sweep; g_i g_j is formed before scaling so both triangles stay bit-identical.
     Scalar* const P = m_P.data();
     Scalar* __restrict g = m_gain.data();
-    gainOf(phi, m_gain);
+    // On the guarded path priorInfo has just formed P d for this very row and P (priorOnRow).
+    if (this->priorOnRow())
+      m_gain = this->work().v1;
+    else
+      gainOf(phi, m_gain);
     const Scalar alpha = lambda + delta * phi.dot(m_gain);
     const Scalar e = eta - phi.dot(m_theta);
     if (!(alpha > Scalar(0)) || !std::isfinite(alpha)) {
@@ -251,7 +255,8 @@ class ForgettingRls : public EstimatorBase<ForgettingRls<Scalar_, K_, MaxK_>, Sc
     return true;
   }
 
-  /// h = phi'P phi and e = eta - phi'theta (O(K^2)); unknown before the exact start.
+  /// h = phi'P phi and e = eta - phi'theta (O(K^2)); unknown before the exact start. Leaves
+  /// g = P phi in the workspace's v1, which the fold that follows reuses (priorOnRow).
   bool priorInfo(const Vector1& row, Scalar& h, Scalar& e) const {
     if (!m_recursive) return false;
     const Eigen::Index k = this->regressors();
