@@ -141,6 +141,24 @@ void wamplerCase(const Wampler& w, const std::string& est) {
     CHECK(scoreResponse(rows, w.sets[static_cast<std::size_t>(j)], j, est + " addRows") >= limit);
     if (merged == Status::ok) CHECK(scoreResponse(a, w.sets[static_cast<std::size_t>(j)], j, est + " merged") >= limit);
   }
+  // Every row four times (84 rows, in one addRows call; more than a block of the joint's blocked
+  // path): the least-squares coefficients are those of the 21 rows, so the certified values
+  // still apply (the SDs do not: n changed). Same threshold as the blocked case above.
+  Eigen::Matrix<S, Dyn, Dyn> X4(4 * X.rows(), X.cols()), Y4(4 * Y.rows(), Y.cols());
+  for (int r = 0; r < 4; ++r) {
+    X4.middleRows(r * X.rows(), X.rows()) = X;
+    Y4.middleRows(r * Y.rows(), Y.rows()) = Y;
+  }
+  typename Multi::Options o4 = o;
+  if constexpr (std::is_same<typename Multi::Options, rowfold::BatchQrOptions>::value) o4.capacity = 128;
+  Multi rows4(w.k(), 5, o4);
+  REQUIRE(rows4.addRows(X4, Y4) == Status::ok);
+  REQUIRE(rows4.count() == 84);
+  for (Eigen::Index j = 0; j < 5; ++j) {
+    CAPTURE(j);
+    const double limit = limitFor(kWampler[j], est) - 1.0;
+    CHECK(scoreResponse(rows4, w.sets[static_cast<std::size_t>(j)], j, est + " addRows x4") >= limit);
+  }
 }
 
 }  // namespace

@@ -54,6 +54,18 @@ struct ResponseFamily<ForgettingRls<S, K, MaxK>> {
   static constexpr int form = 2;  // shared gain
 };
 
+/// Entry (i, j) of the stacked rows [X, Y(:, 0..m-2)] (n x (k + m - 1)) for an Eigen nullary
+/// expression: the joint estimator reads them in place, without a copy.
+template <typename Scalar, typename XD, typename YD>
+struct StackedColumns {
+  const XD* x;
+  const YD* y;
+  Eigen::Index k;
+  Scalar operator()(Eigen::Index i, Eigen::Index j) const {
+    return j < k ? Scalar((*x)(i, j)) : Scalar((*y)(i, j - k));
+  }
+};
+
 }  // namespace detail
 
 /// M responses y_1..y_M fitted on the same K regressors (a multivariate regression
@@ -135,9 +147,10 @@ class MultiResponse {
   static constexpr int MX = detail::extraColumns(M);
   using Joint = typename Family::template Rebind<KJ, MaxKJ>;
   using JointRow = Eigen::Matrix<Scalar, KJ, 1, Eigen::ColMajor, MaxKJ, 1>;
-  static constexpr int kBlock = 64;
-  using JointBlock = Eigen::Matrix<Scalar, Eigen::Dynamic, KJ, Eigen::ColMajor, kBlock, MaxKJ>;
-  using BlockColumn = Eigen::Matrix<Scalar, Eigen::Dynamic, 1, Eigen::ColMajor, kBlock, 1>;
+  // The type of the lazy stacked rows [X, Y(:, 0..m-2)] that addRows hands to the joint
+  // estimator (an expression only: never stored).
+  using JointRows = Eigen::Matrix<Scalar, Eigen::Dynamic, KJ, Eigen::ColMajor, Eigen::Dynamic, MaxKJ>;
+  using WeightColumn = Eigen::Matrix<Scalar, Eigen::Dynamic, 1>;  // a pointer type for "no weights"
   // Zero extra responses (M = 1) as a runtime size bounded by 1 (Eigen's blocks need a column).
   static constexpr int MXS = MX == 0 ? Eigen::Dynamic : MX, MaxMX = MX == 0 ? 1 : MX;
   using ExtraMatrix = Eigen::Matrix<Scalar, K, MXS, Eigen::ColMajor, MaxK, MaxMX>;
@@ -156,9 +169,6 @@ class MultiResponse {
         m_joint(KJ == Eigen::Dynamic ? (jointSize(k, m) > 0 ? jointSize(k, m) : 0) : KJ, unguarded(options)),
         m_view(dimK(k), unguarded(options)),
         m_row(dimJ(k, m)),
-        m_blockX(kForm == 0 ? kBlock : 0, dimJ(k, m)),
-        m_blockY(kForm == 0 ? kBlock : 0),
-        m_blockW(kForm == 0 ? kBlock : 0),
         m_theta(dimK(k), dimX(m)),
         m_sse(dimX(m)),
         m_ybar(dimX(m)),
@@ -267,7 +277,7 @@ class MultiResponse {
   /// NormalEquations fold in blocks (their blocked addRows). Never allocates.
   template <typename XD, typename YD>
   Status addRows(const Eigen::MatrixBase<XD>& X, const Eigen::MatrixBase<YD>& Y) {
-    return addRowsImpl(X, Y, static_cast<const BlockColumn*>(nullptr));
+    return addRowsImpl(X, Y, static_cast<const WeightColumn*>(nullptr));
   }
   /// Weighted form of addRows (w has n entries, each >= 0 and finite).
   template <typename XD, typename YD, typename WD>
@@ -512,17 +522,16 @@ class MultiResponse {
         }
         W = wNew;
       }
-      // Blocks of up to kBlock stacked rows through the joint estimator's blocked addRows.
-      for (Eigen::Index i0 = 0; i0 < n; i0 += kBlock) {
-        const Eigen::Index nb = n - i0 < kBlock ? n - i0 : kBlock;
-        for (Eigen::Index r = 0; r < nb; ++r) {
-          m_blockX.row(r).head(m_k) = X.row(i0 + r);
-          m_blockX.row(r).tail(m_m - 1) = Y.row(i0 + r).head(m_m - 1);
-          m_blockY(r) = Y(i0 + r, m_m - 1);
-          m_blockW(r) = w != nullptr ? Scalar((*w)(i0 + r)) : Scalar(1);
-        }
-        m_joint.addRows(m_blockX.topRows(nb), m_blockY.head(nb), m_blockW.head(nb));
-      }
+      // All rows in one call of the joint estimator's blocked addRows, on a lazy view of the
+      // stacked rows [x', y_1 .. y_{m-1}] (no copy; the joint blocks and converts its factor
+      // once per call, so the result does not depend on how the rows were chunked here).
+      const auto stacked = JointRows::NullaryExpr(
+          n, m_joint.regressors(), detail::StackedColumns<Scalar, XD, YD>{&X.derived(), &Y.derived(), m_k});
+      const auto last = Y.col(m_m - 1);
+      if (w != nullptr)
+        m_joint.addRows(stacked, last, *w);
+      else
+        m_joint.addRows(stacked, last);
     } else {
       for (Eigen::Index i = 0; i < n; ++i) {
         const Scalar wi = w != nullptr ? Scalar((*w)(i)) : Scalar(1);
@@ -943,8 +952,6 @@ class MultiResponse {
   Joint m_joint;
   mutable Estimator m_view;
   JointRow m_row;
-  JointBlock m_blockX;
-  BlockColumn m_blockY, m_blockW;
   // Shared gain only: the extra responses' slopes (co-moments before the start), residual sums,
   // means and centered sums of squares, and scratch.
   ExtraMatrix m_theta;
