@@ -683,7 +683,7 @@ class EstimatorBase {
   WorkspaceType& work() const { return m_work; }
   /// True only inside the fold that the guarded path makes right after `priorInfo` succeeded on
   /// the same centered row m_row, with nothing changed in between: the estimator may reuse
-  /// what its priorInfo left in the workspace (ForgettingRls: the gain P d).
+  /// what its priorInfo computed (ForgettingRls: the gain P d).
   bool priorOnRow() const { return m_priorOnRow; }
 
   /// Default factor bookkeeping: means, W and SST from the centering.

@@ -193,11 +193,8 @@ class ForgettingRls : public EstimatorBase<ForgettingRls<Scalar_, K_, MaxK_>, Sc
     // column sweep; g_i g_j is formed before scaling so both triangles stay bit-identical.
     Scalar* const P = m_P.data();
     Scalar* __restrict g = m_gain.data();
-    // On the guarded path priorInfo has just formed P d for this very row and P (priorOnRow).
-    if (this->priorOnRow())
-      m_gain = this->work().v1;
-    else
-      gainOf(phi, m_gain);
+    // On the guarded path priorInfo has just formed m_gain = P d for this very row and P.
+    if (!this->priorOnRow()) gainOf(phi, m_gain);
     const Scalar alpha = lambda + delta * phi.dot(m_gain);
     const Scalar e = eta - phi.dot(m_theta);
     if (!(alpha > Scalar(0)) || !std::isfinite(alpha)) {
@@ -256,13 +253,12 @@ class ForgettingRls : public EstimatorBase<ForgettingRls<Scalar_, K_, MaxK_>, Sc
   }
 
   /// h = phi'P phi and e = eta - phi'theta (O(K^2)); unknown before the exact start. Leaves
-  /// g = P phi in the workspace's v1, which the fold that follows reuses (priorOnRow).
+  /// g = P phi in m_gain, which the fold that follows reuses (priorOnRow).
   bool priorInfo(const Vector1& row, Scalar& h, Scalar& e) const {
     if (!m_recursive) return false;
     const Eigen::Index k = this->regressors();
-    auto& g = this->work().v1;
-    gainOf(row.head(k), g);
-    h = row.head(k).dot(g);
+    gainOf(row.head(k), m_gain);
+    h = row.head(k).dot(m_gain);
     e = row(k) - row.head(k).dot(m_theta);
     return true;
   }
@@ -392,7 +388,7 @@ class ForgettingRls : public EstimatorBase<ForgettingRls<Scalar_, K_, MaxK_>, Sc
   Options m_options;
   Matrix m_P;
   Vector m_theta;
-  Vector m_gain;
+  mutable Vector m_gain;  // g = P phi of the last row folded or gated (scratch, not state)
   Scalar m_lambdaOption;  // lambda of the options
   Scalar m_invLambda;     // 1/lambda
   Scalar m_sse = 0;
