@@ -75,14 +75,14 @@ class Centering {
     const Eigen::Index k = m_xbar.size();
     if (mode == Intercept::none) {
       const Scalar c = std::sqrt(w);
-      row.head(k) = c * x;
+      detail::headOf<K>(row, k) = c * x;
       row(k) = c * y;
       return c;
     }
     const Scalar aged = lambda * m_weight;
     const Scalar wNew = aged + w;
     const Scalar c = std::sqrt(w * (aged / wNew));
-    row.head(k) = c * (x - m_xbar);
+    detail::headOf<K>(row, k) = c * (x - m_xbar);
     row(k) = c * (y - m_ybar);
     return c;
   }
@@ -104,11 +104,11 @@ class Centering {
     const Scalar aged = lambda * m_weight;
     const Scalar wNew = aged + w;
     if (mode == Intercept::none) {
-      row.head(k) = x;
+      detail::headOf<K>(row, k) = x;
       row(k) = y;
       return Step{w, Scalar(0), wNew};
     }
-    row.head(k) = x - m_xbar;
+    detail::headOf<K>(row, k) = x - m_xbar;
     row(k) = y - m_ybar;
     // Two independent divisions (not a reciprocal and products): one rounding each, which the
     // cross-product forms notice on exact-fit data (NIST Wampler1).
@@ -119,7 +119,7 @@ class Centering {
   void commitStep(const Step& st, Scalar lambda, Intercept mode, const Vector1& row) {
     const Eigen::Index k = m_xbar.size();
     if (mode == Intercept::fit) {
-      m_xbar += st.share * row.head(k);
+      m_xbar += st.share * detail::headOf<K>(row, k);
       m_ybar += st.share * row(k);
     }
     m_syy = lambda * m_syy + st.delta * row(k) * row(k);
@@ -202,12 +202,12 @@ class Centering {
     if (!(rest > Scalar(0))) return false;
     if (mode == Intercept::none) {
       const Scalar c = std::sqrt(w);
-      row.head(k) = c * x;
+      detail::headOf<K>(row, k) = c * x;
       row(k) = c * y;
       return true;
     }
     const Scalar c = std::sqrt(w * (m_weight / rest));
-    row.head(k) = c * (x - m_xbar);
+    detail::headOf<K>(row, k) = c * (x - m_xbar);
     row(k) = c * (y - m_ybar);
     return true;
   }

@@ -113,8 +113,12 @@ class EstimatorBase {
   using WorkspaceType = detail::Workspace<Scalar, K, MaxK>;  ///< query scratch (internal)
   using GuardStateType = detail::GuardState<Scalar, K, MaxK>;  ///< windup guard and outlier gate state (internal)
 
-  /// Number of regressors K (excluding the intercept).
-  Eigen::Index regressors() const { return m_k; }
+  /// Number of regressors K (excluding the intercept). A compile-time constant for fixed K, so
+  /// that every loop over the regressors has a known trip count (unrolled, vectorized).
+  Eigen::Index regressors() const {
+    if constexpr (K != Eigen::Dynamic) return K;
+    else return m_k;
+  }
   /// Outcome of option validation at construction: `ok`, `wrong_size` (k <= 0, or k != K for
   /// a fixed K) or `invalid_options` (see validate(const FitOptions&)); estimators with options of
   /// their own shadow it. Anything but `ok` makes `add` refuse every sample of positive weight. O(1).
@@ -226,7 +230,7 @@ class EstimatorBase {
   /// points to K readable Scalars. `wrong_size` for a null pointer; otherwise as add() above.
   Status add(const Scalar* x, Scalar y, Scalar w = Scalar(1)) {
     if (x == nullptr) return Status::wrong_size;
-    return add(Eigen::Map<const Vector>(x, m_k), y, w);
+    return add(Eigen::Map<const Vector>(x, regressors()), y, w);
   }
 
   /// Folds the rows of X (n x K) with responses y (n). All-or-nothing: every row is validated
@@ -288,7 +292,7 @@ class EstimatorBase {
     if (derived().status() != Status::ok) return derived().status();
     if (other.status() != Status::ok || &other == &derived()) return Status::state_mismatch;
     const EstimatorBase& o = other;
-    if (o.m_k != m_k || o.m_fit.intercept != m_fit.intercept || o.m_fit.forgetting != m_fit.forgetting)
+    if (o.regressors() != regressors() || o.m_fit.intercept != m_fit.intercept || o.m_fit.forgetting != m_fit.forgetting)
       return Status::state_mismatch;
     if (o.count() == 0) return Status::ok;
     const Status s = derived().canMerge(other);
@@ -299,7 +303,7 @@ class EstimatorBase {
     m_centering.mergeRow(o.m_centering, age, m_fit.intercept, m_row);
     derived().mergeState(other, age, m_row);
     m_centering.commitMerge(o.m_centering, age, m_fit.intercept, m_row);
-    m_guard.spread = age * m_guard.spread + o.m_guard.spread + m_row.head(m_k).cwiseAbs2();
+    m_guard.spread = age * m_guard.spread + o.m_guard.spread + m_row.head(regressors()).cwiseAbs2();
     m_guard.peak = m_guard.peak.cwiseMax(o.m_guard.peak).cwiseMax(m_guard.spread);
     if (!m_guard.scaleReady(m_fit.outliers.warmup)) {
       m_guard.scale2 = o.m_guard.scale2;
@@ -338,7 +342,7 @@ class EstimatorBase {
   /// model is kept by reset(). Never allocates.
   template <typename VD>
   Status setNominal(const Eigen::MatrixBase<VD>& theta0) {
-    if (theta0.size() != m_k) return Status::wrong_size;
+    if (theta0.size() != regressors()) return Status::wrong_size;
     if (!theta0.allFinite()) return Status::nonfinite_input;
     m_guard.nominal = theta0.template cast<Scalar>();
     return Status::ok;
@@ -352,7 +356,7 @@ class EstimatorBase {
   /// solveInto: for Eigen::Dynamic K (unbounded MaxK) the returned Solution allocates its
   /// vector; use solveInto in a loop that must not allocate.
   SolutionType solve() const {
-    SolutionType s(m_k);
+    SolutionType s(regressors());
     derived().solveInto(s);
     return s;
   }
@@ -377,7 +381,7 @@ class EstimatorBase {
   Status solveInto(SolutionType& out) const {
     out.flags = Flags();
     if (count() == 0) {
-      out.coefficients.setZero(m_k);
+      out.coefficients.setZero(regressors());
       out.intercept = Scalar(0);
       out.rank = 0;
       out.status = Status::empty;
@@ -394,7 +398,7 @@ class EstimatorBase {
   /// Full report at confidence `level` (e.g. 0.95). Value form of summarizeInto (the Summary
   /// allocates for Eigen::Dynamic K).
   SummaryType summarize(Scalar level = Scalar(0.95)) const {
-    SummaryType s(m_k);
+    SummaryType s(regressors());
     summarizeInto(s, level);
     return s;
   }
@@ -446,7 +450,7 @@ class EstimatorBase {
   /// Condition estimate, VIFs, numerical rank, digit estimates and flags. Value form of
   /// conditioningInto (allocates for Eigen::Dynamic K).
   ConditioningType conditioning() const {
-    ConditioningType c(m_k);
+    ConditioningType c(regressors());
     conditioningInto(c);
     return c;
   }
@@ -494,7 +498,7 @@ class EstimatorBase {
   template <typename XD>
   Scalar predict(const Eigen::MatrixBase<XD>& x0) const {
     SolutionType& s = m_solution;
-    if (x0.size() != m_k || derived().solveInto(s) != Status::ok) return std::numeric_limits<Scalar>::quiet_NaN();
+    if (x0.size() != regressors() || derived().solveInto(s) != Status::ok) return std::numeric_limits<Scalar>::quiet_NaN();
     return s.intercept + x0.dot(s.coefficients);
   }
 
@@ -516,7 +520,7 @@ class EstimatorBase {
   template <typename XD>
   PredictionType predictionInterval(const Eigen::MatrixBase<XD>& x0, Scalar level = Scalar(0.95)) const {
     PredictionType out;
-    if (x0.size() != m_k) {
+    if (x0.size() != regressors()) {
       out.status = Status::wrong_size;
       return out;
     }
@@ -642,8 +646,8 @@ class EstimatorBase {
   Status correlation(Matrix& C) const {
     const Status s = covariance(C);
     if (s != Status::ok) return s;
-    for (Eigen::Index j = 0; j < m_k; ++j) m_work.v1(j) = C(j, j) > Scalar(0) ? Scalar(1) / std::sqrt(C(j, j)) : Scalar(0);
-    for (Eigen::Index j = 0; j < m_k; ++j) C.col(j) = C.col(j).cwiseProduct(m_work.v1) * m_work.v1(j);
+    for (Eigen::Index j = 0; j < regressors(); ++j) m_work.v1(j) = C(j, j) > Scalar(0) ? Scalar(1) / std::sqrt(C(j, j)) : Scalar(0);
+    for (Eigen::Index j = 0; j < regressors(); ++j) C.col(j) = C.col(j).cwiseProduct(m_work.v1) * m_work.v1(j);
     return Status::ok;
   }
 
@@ -702,14 +706,14 @@ class EstimatorBase {
   void finishSolution(SolutionType& out) const {
     out.status = Status::ok;
     out.flags.set(guardFlags());
-    const Eigen::Index p = m_k + (m_fit.intercept == Intercept::fit ? 1 : 0);
+    const Eigen::Index p = regressors() + (m_fit.intercept == Intercept::fit ? 1 : 0);
     if (!(effectiveCount() > Scalar(p))) out.flags.set(Flag::too_few_samples);
-    if (out.rank < m_k) out.flags.set(Flag::rank_deficient);
+    if (out.rank < regressors()) out.flags.set(Flag::rank_deficient);
   }
 
   /// Zero solution with `not_available` and the workspace's flags.
   Status unavailable(SolutionType& out) const {
-    out.coefficients.setZero(m_k);
+    out.coefficients.setZero(regressors());
     out.intercept = Scalar(0);
     out.rank = 0;
     out.flags = m_work.flags;
@@ -722,14 +726,14 @@ class EstimatorBase {
   /// `not_available` instead of returning NaN.
   bool factorizeChecked() const {
     if (!derived().factorize(m_work)) return false;
-    if (m_work.rank < m_k && Derived::errorModel != detail::ErrorModel::refined_raw) {  // BatchQr sums raw residuals
+    if (m_work.rank < regressors() && Derived::errorModel != detail::ErrorModel::refined_raw) {  // BatchQr sums raw residuals
       // Rank deficient: the basic solution leaves z - R b in the dependent rows (a factor whose
       // dependent diagonal is rounding-level carries part of y there), so that residual belongs
       // to the SSE: rho^2 + |z - R b|^2 (plain loops: no heap).
       Scalar extra = Scalar(0);
-      for (Eigen::Index i = 0; i < m_k; ++i) {
+      for (Eigen::Index i = 0; i < regressors(); ++i) {
         Scalar r = m_work.z(i);
-        for (Eigen::Index j = i; j < m_k; ++j) r -= m_work.R(i, j) * m_work.b(j);
+        for (Eigen::Index j = i; j < regressors(); ++j) r -= m_work.R(i, j) * m_work.b(j);
         extra += r * r;
       }
       m_work.rho = std::sqrt(m_work.rho * m_work.rho + extra);
@@ -836,7 +840,7 @@ class EstimatorBase {
     h[8] = static_cast<unsigned char>(Derived::kind);
     h[9] = static_cast<unsigned char>(m_fit.intercept == Intercept::fit ? 0 : 1);
     detail::putField(h + 12, detail::kByteOrderTag);
-    detail::putField(h + 16, static_cast<std::uint32_t>(m_k));
+    detail::putField(h + 16, static_cast<std::uint32_t>(regressors()));
     detail::putField(h + 20, static_cast<std::uint32_t>(payload));
     detail::putField(h + 24, m_fit.forgetting);
     detail::putField(h + 32, m_fit.vifLimit);
@@ -845,7 +849,7 @@ class EstimatorBase {
   template <typename XD>
   Status check(const Eigen::MatrixBase<XD>& x, Scalar y, Scalar w) const {
     if (derived().status() != Status::ok) return derived().status();  // incl. the estimator's own options
-    if (x.size() != m_k) return Status::wrong_size;
+    if (x.size() != regressors()) return Status::wrong_size;
     if (!(w >= Scalar(0)) || !std::isfinite(w)) return Status::negative_weight;
     // x * 0 is 0 for finite x and NaN for NaN or Inf: one vectorized pass without early exit
     // (Eigen's allFinite tests entry by entry).
@@ -914,7 +918,7 @@ class EstimatorBase {
   /// Returns true if a row was folded.
   bool supportFloor(Scalar floor) {
     bool any = false;
-    for (Eigen::Index j = 0; j < m_k; ++j) {
+    for (Eigen::Index j = 0; j < regressors(); ++j) {
       const Scalar need = floor * m_guard.peak(j) - m_guard.spread(j);
       if (!(need > Scalar(0))) continue;
       if (!any && !derived().currentSlopes(m_work.v3)) return false;
@@ -924,7 +928,7 @@ class EstimatorBase {
       const Scalar a = std::sqrt(need);
       pseudo.setZero();
       pseudo(j) = a;
-      pseudo(m_k) = a * m_work.v3(j);
+      pseudo(regressors()) = a * m_work.v3(j);
       m_step = Scalar(1);
       derived().foldRow(m_centering.xMean(), m_centering.yMean(), Scalar(1), pseudo, Scalar(1));  // a scaled row: weight 1
       m_step = m_lambda;
@@ -982,10 +986,10 @@ class EstimatorBase {
         m_guard.lastFlags = 0;
         if (delayed) {
           foldAged(x, y, w / aged, aged);
-          m_guard.foldSpread(one, m_row.head(m_k));
+          m_guard.foldSpread(one, detail::headOf<K>(m_row, regressors()));
         } else {
           const Scalar delta = fold(x, y, w, m_lambda);
-          m_guard.foldSpread(m_lambda, m_row.head(m_k), delta);
+          m_guard.foldSpread(m_lambda, detail::headOf<K>(m_row, regressors()), delta);
         }
         return Status::ok;
       }
@@ -1001,7 +1005,7 @@ class EstimatorBase {
     }
     if (delayed) {  // no step passes: no forgetting to guard, no regularization pseudo-row
       foldAged(x, y, weight / aged, aged);
-      m_guard.foldSpread(one, m_row.head(m_k));
+      m_guard.foldSpread(one, detail::headOf<K>(m_row, regressors()));
       if (scaled) m_guard.foldScale(q, o.warmup, static_cast<Scalar>(o.scaleMemory), c2);
       return Status::ok;
     }
@@ -1042,7 +1046,7 @@ class EstimatorBase {
         delta = fold(x, y, weight, lam);  // m_row: the unscaled centered row, weight delta
       m_priorOnRow = false;
     }
-    m_guard.foldSpread(lam, m_row.head(m_k), delta);
+    m_guard.foldSpread(lam, detail::headOf<K>(m_row, regressors()), delta);
     if (lam < one && g.enabled && g.spreadFloor > 0.0 && known && supportFloor(static_cast<Scalar>(g.spreadFloor)))
       held = static_cast<std::uint16_t>(held | static_cast<std::uint16_t>(Flag::windup_guarded));
     m_guard.lastFlags = held;
@@ -1050,15 +1054,15 @@ class EstimatorBase {
       // One pseudo-row a [e_i, theta0_i], a^2 = K (1 - lam) delta, cycling over the inputs: on
       // average (1 - lam) delta I is added to the information (and theta0 to its right side).
       typename Dims::Vector1& pseudo = m_work.v2aug;
-      const Eigen::Index i = static_cast<Eigen::Index>(m_guard.cycle % static_cast<std::uint32_t>(m_k));
-      const Scalar a = std::sqrt(Scalar(m_k) * (one - lam) * static_cast<Scalar>(g.regularization));
+      const Eigen::Index i = static_cast<Eigen::Index>(m_guard.cycle % static_cast<std::uint32_t>(regressors()));
+      const Scalar a = std::sqrt(Scalar(regressors()) * (one - lam) * static_cast<Scalar>(g.regularization));
       pseudo.setZero();
       pseudo(i) = a;
-      pseudo(m_k) = a * m_guard.nominal(i);
+      pseudo(regressors()) = a * m_guard.nominal(i);
       m_step = one;
       derived().foldRow(m_centering.xMean(), m_centering.yMean(), one, pseudo, Scalar(1));  // a scaled row: weight 1
       m_step = m_lambda;
-      m_guard.cycle = (m_guard.cycle + 1) % static_cast<std::uint32_t>(m_k);
+      m_guard.cycle = (m_guard.cycle + 1) % static_cast<std::uint32_t>(regressors());
     }
     if (scaled) {
       if (g.enabled && g.changeThreshold > 0.0 && ready) {
@@ -1121,7 +1125,7 @@ class EstimatorBase {
     static_assert(std::is_same<typename XD::Scalar, Scalar>::value, "rowfold: X must have the estimator's Scalar");
     if (derived().status() != Status::ok) return derived().status();
     const Eigen::Index n = X.rows();
-    if (X.cols() != m_k || y.size() != n || (w != nullptr && w->size() != n)) return Status::wrong_size;
+    if (X.cols() != regressors() || y.size() != n || (w != nullptr && w->size() != n)) return Status::wrong_size;
     // Every row is validated before anything is folded. One vectorized pass over everything
     // first (x * 0 is 0 for finite x, NaN otherwise); only when it finds a bad value does the
     // row-by-row pass run to report the first offending row's Status.

@@ -28,4 +28,15 @@ struct Dims {
   using Matrix1 = Eigen::Matrix<Scalar, K1, K1, Eigen::ColMajor, MaxK1, MaxK1>;
 };
 
+/// v.head(n) as a fixed-size block when N is known at compile time (N == n then): Eigen emits
+/// straight-line code for it, where a runtime-sized head keeps a size and an alignment test on
+/// the per-sample path even when n is a constant. The dynamic head otherwise.
+template <int N, typename V>
+auto headOf(V&& v, Eigen::Index n) {
+  if constexpr (N == Eigen::Dynamic)
+    return v.head(n);
+  else
+    return v.template head<N>();
+}
+
 }  // namespace rowfold::detail
