@@ -37,7 +37,7 @@ struct ForgettingRlsOptions : FitOptions {
 ///   g = P phi,  alpha = lambda + phi'g,  e = eta - phi'theta,
 ///   theta += g e / alpha,  P = (P - g g'/alpha) / lambda,  SSE = lambda SSE + lambda e^2/alpha.
 /// ```
-/// P is kept as a full matrix whose two triangles are updated by bit-identical operations
+/// P is kept as a full matrix; after each update the lower triangle is copied over the upper
 /// (symmetry by construction, Verhaegen 1989). A row enters unscaled with its weight delta
 /// (NUMERICS §4.1), so no square root is taken.
 /// Coefficients are current after every sample: solve() costs O(K).
@@ -190,7 +190,7 @@ class ForgettingRls : public EstimatorBase<ForgettingRls<Scalar_, K_, MaxK_>, Sc
     //   alpha = lambda + delta phi'g,  kappa = delta / alpha,  theta += kappa e g,
     //   P = (P - kappa g g') / lambda,  SSE = lambda (SSE + kappa e^2).
     // P is kept as a full symmetric matrix (both triangles) so that every pass is a contiguous
-    // column sweep; g_i g_j is formed before scaling so both triangles stay bit-identical.
+    // column sweep; sweepP keeps the two triangles identical.
     // On the guarded path priorInfo has just formed g = P d, d'g and e for this very row, P and
     // theta (the same expressions, so the same bits).
     const bool prior = this->priorOnRow();
@@ -215,8 +215,8 @@ class ForgettingRls : public EstimatorBase<ForgettingRls<Scalar_, K_, MaxK_>, Sc
     if (!positive) m_lost = true;
   }
 
-  /// P = P il - (g g') s (Aged; else P - (g g') s), column by column. Each entry is formed as
-  /// (g_i g_j) s, so both triangles stay bit-identical. Fixed K: Eigen packet code with a known
+  /// P = P il - (g g') s (Aged; else P - (g g') s), column by column, each entry formed as
+  /// (g_i g_j) s; then the lower triangle is copied over the upper (exact symmetry, see below). Fixed K: Eigen packet code with a known
   /// trip count (GCC unrolls a plain loop of small known count into scalar code before its
   /// vectorizer sees it: about 30 % more instructions at K = 8..32). Dynamic K: a plain loop,
   /// which the vectorizer handles without Eigen's alignment peeling on every column.
@@ -244,6 +244,13 @@ class ForgettingRls : public EstimatorBase<ForgettingRls<Scalar_, K_, MaxK_>, Sc
         }
       }
     }
+    // Vector code and its scalar remainder (or two unrolled copies) may contract a multiply-add
+    // into an FMA in one entry and not, or around the other multiply, in its mirror (seen on
+    // aarch64, fixed and dynamic K): P loses exact symmetry, and the antisymmetric part then
+    // grows like lambda^-n (Verhaegen 1989) until the fit breaks down. Copying the lower
+    // triangle over the upper keeps P symmetric whatever the compiler fuses.
+    for (Eigen::Index j = 1; j < k; ++j)
+      for (Eigen::Index i = 0; i < j; ++i) m_P(i, j) = m_P(j, i);
   }
 
   /// g = P phi for the full symmetric P, one dot product per entry (P's columns are its rows):
