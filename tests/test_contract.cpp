@@ -231,8 +231,8 @@ TEST_CASE_TEMPLATE_DEFINE("contract", F, contract_id) {
   }
 }
 
-TEST_CASE_TEMPLATE_INVOKE(contract_id, ROWFOLD_CONTRACT_TYPES(float), ROWFOLD_CONTRACT_TYPES(double),
-                          ROWFOLD_CONTRACT_TYPES(long double));
+TEST_CASE_TEMPLATE_INVOKE(contract_id, ROWFOLD_CONTRACT_TYPES(float), ROWFOLD_CONTRACT_TYPES(double)
+                          ROWFOLD_WITH_LONG_DOUBLE(ROWFOLD_CONTRACT_TYPES(long double)));
 
 TEST_CASE("collinear inputs raise the VIF flag (threshold 10 = common practice, Marquardt 1970)") {
   rowfold::GivensQr<double, 2> est;

@@ -164,7 +164,7 @@ void wamplerCase(const Wampler& w, const std::string& est) {
 }  // namespace
 
 TEST_CASE_TEMPLATE("NIST Wampler1-5 as five responses of one fit: every response meets its set's thresholds", S,
-                   double, long double) {
+                   double ROWFOLD_WITH_LONG_DOUBLE(long double)) {
   const Wampler w;
   wamplerCase<BatchQrD, S>(w, "BatchQr");
   wamplerCase<rowfold::GivensQr, S>(w, "GivensQr");

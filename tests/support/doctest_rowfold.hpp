@@ -1,4 +1,4 @@
-// doctest printing of rowfold values.
+// doctest printing of rowfold values, and the long double switch of the contract-type suites.
 #pragma once
 
 #include <doctest/doctest.h>
@@ -11,3 +11,15 @@ struct StringMaker<rowfold::Status> {
   static String convert(rowfold::Status s) { return rowfold::nameOf(s); }
 };
 }  // namespace doctest
+
+// ROWFOLD_WITH_LONG_DOUBLE(types) appends ", types" to a doctest type list unless the build sets
+// ROWFOLD_TEST_LONG_DOUBLE=0 (CMake option of the same name; tests/CMakeLists.txt says which CI
+// stages switch it off and why).
+#ifndef ROWFOLD_TEST_LONG_DOUBLE
+#define ROWFOLD_TEST_LONG_DOUBLE 1
+#endif
+#if ROWFOLD_TEST_LONG_DOUBLE
+#define ROWFOLD_WITH_LONG_DOUBLE(...) , __VA_ARGS__
+#else
+#define ROWFOLD_WITH_LONG_DOUBLE(...)
+#endif
