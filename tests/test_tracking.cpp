@@ -16,6 +16,8 @@
 #include <type_traits>
 #include <vector>
 
+#include <Eigen/QR>
+
 #include "rowfold/rowfold.hpp"
 #include "support/doctest_rowfold.hpp"
 #include "support/snapshot_image.hpp"
@@ -375,6 +377,47 @@ TEST_CASE_TEMPLATE("ForgettingRls: P stays exactly symmetric", E, rowfold::Forge
   REQUIRE(est.recursive());
   const auto& P = est.covarianceFactor();
   CHECK((P.array() == P.transpose().array()).all());
+}
+
+// The fit itself after the defect the test above pins: when P's two triangles drifted apart
+// (aarch64, before the copy), lambda = 0.97 broke the fit within ~1100 samples; without the copy
+// this test sees coefficients off by 1e2..1e5 there (measured with a driver under qemu-aarch64,
+// 2026-12-03). Reference: the exponentially weighted least-squares fit (weights
+// lambda^(n-1-i), intercept column) by Eigen's HouseholderQR in double, outside the estimator.
+// Tolerances: a few hundred times the differences seen on x86-64 and aarch64 (1.3e-14 double,
+// 6e-6 float).
+TEST_CASE_TEMPLATE("ForgettingRls at lambda = 0.97 over 2000 samples equals the weighted batch fit (HouseholderQR)", E,
+                   rowfold::ForgettingRls<double, 3>, rowfold::ForgettingRls<float, 3>,
+                   rowfold::ForgettingRls<double, 8>, rowfold::ForgettingRls<float, 8>,
+                   rowfold::ForgettingRls<double, Eigen::Dynamic>, rowfold::ForgettingRls<float, Eigen::Dynamic>) {
+  using S = typename E::Scalar;
+  constexpr int k = E::K == Eigen::Dynamic ? 5 : E::K;
+  constexpr int n = 2000;
+  typename E::Options o;
+  o.forgetting = 0.97;
+  o.windup.enabled = false;  // plain exponential forgetting, as in the reference
+  E est(k, o);
+  std::mt19937_64 rng(11);
+  std::normal_distribution<double> n01(0, 1);
+  Eigen::MatrixXd A(n, k + 1);
+  Eigen::VectorXd b(n);
+  Eigen::Matrix<S, Eigen::Dynamic, 1> x(k);
+  for (int i = 0; i < n; ++i) {
+    for (int j = 0; j < k; ++j) x(j) = S(j + n01(rng));
+    const S y = S(x.sum() + 0.1 * n01(rng));
+    REQUIRE(est.add(x, y) == Status::ok);
+    const double w = std::pow(0.97, 0.5 * (n - 1 - i));
+    A(i, 0) = w;
+    A.row(i).tail(k) = w * x.template cast<double>().transpose();
+    b(i) = w * double(y);
+  }
+  REQUIRE(est.recursive());
+  const Eigen::VectorXd ref = A.householderQr().solve(b);
+  const auto sol = est.solve();
+  REQUIRE(sol.status == Status::ok);
+  const double tol = std::is_same_v<S, float> ? 2e-4 : 1e-10;
+  CHECK(std::abs(double(sol.intercept) - ref(0)) <= tol * (1 + std::abs(ref(0))));
+  for (int j = 0; j < k; ++j) CHECK(std::abs(double(sol.coefficients(j)) - ref(j + 1)) <= tol * (1 + std::abs(ref(j + 1))));
 }
 
 TEST_CASE("guards: snapshots carry the guard state (bit-identical continuation) and bad options are refused") {
