@@ -216,10 +216,12 @@ class ForgettingRls : public EstimatorBase<ForgettingRls<Scalar_, K_, MaxK_>, Sc
   }
 
   /// P = P il - (g g') s (Aged; else P - (g g') s), column by column, each entry formed as
-  /// (g_i g_j) s; then the lower triangle is copied over the upper (exact symmetry, see below). Fixed K: Eigen packet code with a known
-  /// trip count (GCC unrolls a plain loop of small known count into scalar code before its
-  /// vectorizer sees it: about 30 % more instructions at K = 8..32). Dynamic K: a plain loop,
-  /// which the vectorizer handles without Eigen's alignment peeling on every column.
+  /// (g_i g_j) s; then the lower triangle is copied over the upper (exact symmetry, see below).
+  /// Fixed K: Eigen packet code with a known trip count (GCC unrolls a plain loop of small known
+  /// count into scalar code before its vectorizer sees it: about 30 % more instructions at
+  /// K = 8..32). Dynamic K: a plain loop, which the vectorizer handles without Eigen's alignment
+  /// peeling on every column. Updating only the lower triangle (no copy) was measured and is
+  /// slower at fixed K up to 16 (bench/README.md, "P-triangle experiment").
   template <bool Aged>
   void sweepP(Scalar il, Scalar s) {
     const Eigen::Index k = this->regressors();
