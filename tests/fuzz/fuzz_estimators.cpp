@@ -3,9 +3,10 @@
 // or undefined behaviour (run under ASan/UBSan), a refused sample leaves the state bit-identical,
 // and solve() never returns non-finite coefficients without a flag or status saying why. The
 // input also switches on the guards (outlier gate, Huber, regularization, variable forgetting,
-// change alarm) and drives merge, relax, advance and addDelayed; a sample the outlier gate
+// change alarm) and drives addRows, merge, relax, advance and addDelayed; a sample the outlier gate
 // refuses must leave the snapshot image byte-identical (only the diagnostic counters change).
-// A first byte >= 0xF0 drives MultiResponse (two responses) over each estimator instead.
+// A first byte >= 0xF0 drives MultiResponse (two responses) over each estimator instead,
+// including its blocked addRows and a snapshot/restore round trip of the state reached.
 #include <cstddef>
 #include <cstdint>
 #include <cstdlib>
@@ -63,6 +64,15 @@ void exercise(Est& est, Input& in) {
       require(image(est) == imageBefore);  // scratch and counters may change, the state may not
     else if (s != rowfold::Status::ok)
       require(std::memcmp(before, static_cast<const void*>(&est), sizeof(Est)) == 0);
+    if ((op & 0x0E) == 0x02) {  // a block of three rows: all-or-nothing, so a refusal keeps the image
+      Eigen::Matrix<Scalar, 3, 3> X;
+      Eigen::Matrix<Scalar, 3, 1> yr, wr;
+      for (Eigen::Index i = 0; i < 3; ++i)
+        if (!in.take(X(i, 0)) || !in.take(X(i, 1)) || !in.take(X(i, 2)) || !in.take(yr(i)) || !in.take(wr(i))) return;
+      const std::vector<unsigned char> blockBefore = image(est);
+      const rowfold::Status sb = (op & 1) ? est.addRows(X, yr, wr) : est.addRows(X, yr);
+      if (sb != rowfold::Status::ok) require(image(est) == blockBefore);
+    }
     if ((op & 0x0E) == 0x06) {
       Est part = est;  // merge a copy of the current state into itself (ages double)
       (void)est.merge(part);
@@ -136,6 +146,28 @@ void runMulti(const std::uint8_t* data, std::size_t size) {
     const bool late = (op & 0x0E) == 0x0E;
     const rowfold::Status s = late ? est.addDelayed(x, y, op >> 4, w) : est.add(x, y, w);
     if (s != rowfold::Status::ok) require(image(est) == imageBefore);
+    if ((op & 0x0E) == 0x02) {  // a block of three rows, all-or-nothing
+      Eigen::Matrix<Scalar, 3, 3> X;
+      Eigen::Matrix<Scalar, 3, 2> Y;
+      Eigen::Matrix<Scalar, 3, 1> wr;
+      for (Eigen::Index i = 0; i < 3; ++i)
+        if (!in.take(X(i, 0)) || !in.take(X(i, 1)) || !in.take(X(i, 2)) || !in.take(Y(i, 0)) || !in.take(Y(i, 1)) ||
+            !in.take(wr(i)))
+          return;
+      const std::vector<unsigned char> blockBefore = image(est);
+      const rowfold::Status sb = (op & 1) ? est.addRows(X, Y, wr) : est.addRows(X, Y);
+      if (sb != rowfold::Status::ok) require(image(est) == blockBefore);
+    }
+    // The image restores into a fresh object and into the object itself, bytes equal.
+    if ((op & 0x0E) == 0x04 && est.status() == rowfold::Status::ok) {
+      const std::vector<unsigned char> now = image(est);
+      Multi fresh(o);
+      require(fresh.restore(now.data(), now.size()) == rowfold::Status::ok && image(fresh) == now);
+      require(est.restore(now.data(), now.size()) == rowfold::Status::ok && image(est) == now);
+      std::vector<unsigned char> bent = now;  // one flipped bit: refused, state untouched
+      bent[(op >> 4) % bent.size()] ^= 0x10;
+      require(est.restore(bent.data(), bent.size()) != rowfold::Status::ok && image(est) == now);
+    }
     if ((op & 0x0E) == 0x06) {
       Multi part = est;
       (void)est.merge(part);

@@ -32,6 +32,14 @@ Scalar makeReflector(Scalar alpha, Scalar sigma, Scalar* x, Eigen::Index m, Eige
   } else {
     Scalar amax = std::abs(xe);
     for (Eigen::Index r = 0; r < m; ++r) amax = std::abs(x[r * step]) > amax ? std::abs(x[r * step]) : amax;
+    // An entry that overflowed earlier (inf or NaN) has no exponent to scale by: no scaling,
+    // and the non-finite result reaches the caller's finiteness checks.
+    if (!(amax > Scalar(0) && amax <= std::numeric_limits<Scalar>::max())) {
+      beta = std::sqrt(alpha * alpha + sigma);
+      v0 = -sigma / (alpha + beta);
+      tau = Scalar(2) / (v0 * v0 + sigma);
+      return beta;
+    }
     shift = -std::ilogb(amax);
     xe = std::ldexp(xe, shift);
     sigma = xe * xe;
