@@ -123,7 +123,7 @@ const bool registered = [] {
     registerK<double, decltype(kc)::value>();
     registerK<float, decltype(kc)::value>();
   });
-  forEachK(std::integer_sequence<int, 2, 4, 8>{}, [](auto kc) { registerWindow<decltype(kc)::value>(); });
+  forEachK(SmallKs{}, [](auto kc) { registerWindow<decltype(kc)::value>(); });
   return true;
 }();
 

@@ -231,7 +231,7 @@ TEST_CASE_TEMPLATE_DEFINE("contract", F, contract_id) {
   }
 }
 
-TEST_CASE_TEMPLATE_INVOKE(contract_id, ROWFOLD_CONTRACT_TYPES(float), ROWFOLD_CONTRACT_TYPES(double)
+TEST_CASE_TEMPLATE_INVOKE(contract_id, ROWFOLD_WITH_FLOAT(ROWFOLD_CONTRACT_TYPES(float)) ROWFOLD_CONTRACT_TYPES(double)
                           ROWFOLD_WITH_LONG_DOUBLE(ROWFOLD_CONTRACT_TYPES(long double)));
 
 TEST_CASE("collinear inputs raise the VIF flag (threshold 10 = common practice, Marquardt 1970)") {

@@ -126,7 +126,7 @@ TEST_CASE_TEMPLATE_DEFINE("no heap in the hot path", F, noheap_id) {
   CHECK(sol.rank == 4);
 }
 
-TEST_CASE_TEMPLATE_INVOKE(noheap_id, ROWFOLD_NOHEAP_TYPES(float), ROWFOLD_NOHEAP_TYPES(double)
+TEST_CASE_TEMPLATE_INVOKE(noheap_id, ROWFOLD_WITH_FLOAT(ROWFOLD_NOHEAP_TYPES(float)) ROWFOLD_NOHEAP_TYPES(double)
                           ROWFOLD_WITH_LONG_DOUBLE(ROWFOLD_NOHEAP_TYPES(long double)));
 
 TEST_CASE("the fence itself works: a dynamic Eigen allocation is caught") {

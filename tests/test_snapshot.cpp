@@ -115,7 +115,7 @@ TEST_CASE_TEMPLATE_DEFINE("snapshot and restore", F, snapshot_id) {
   }
 }
 
-TEST_CASE_TEMPLATE_INVOKE(snapshot_id, ROWFOLD_SNAPSHOT_TYPES(float), ROWFOLD_SNAPSHOT_TYPES(double)
+TEST_CASE_TEMPLATE_INVOKE(snapshot_id, ROWFOLD_WITH_FLOAT(ROWFOLD_SNAPSHOT_TYPES(float)) ROWFOLD_SNAPSHOT_TYPES(double)
                           ROWFOLD_WITH_LONG_DOUBLE(ROWFOLD_SNAPSHOT_TYPES(long double)));
 
 TEST_CASE("an image of another estimator kind or Scalar is refused") {

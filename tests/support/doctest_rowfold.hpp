@@ -1,4 +1,5 @@
-// doctest printing of rowfold values, and the long double switch of the contract-type suites.
+// doctest printing of rowfold values, and the float and long double switches of the contract-type
+// suites.
 #pragma once
 
 #include <doctest/doctest.h>
@@ -22,4 +23,15 @@ struct StringMaker<rowfold::Status> {
 #define ROWFOLD_WITH_LONG_DOUBLE(...) , __VA_ARGS__
 #else
 #define ROWFOLD_WITH_LONG_DOUBLE(...)
+#endif
+
+// ROWFOLD_WITH_FLOAT(types) puts "types, " in front of the rest of a doctest type list unless the
+// build sets ROWFOLD_TEST_FLOAT=0 (CMake option of the same name; see tests/CMakeLists.txt).
+#ifndef ROWFOLD_TEST_FLOAT
+#define ROWFOLD_TEST_FLOAT 1
+#endif
+#if ROWFOLD_TEST_FLOAT
+#define ROWFOLD_WITH_FLOAT(...) __VA_ARGS__,
+#else
+#define ROWFOLD_WITH_FLOAT(...)
 #endif
