@@ -354,70 +354,74 @@ TEST_CASE_TEMPLATE("guards: an inert guard folds bit for bit what the plain path
   }
 }
 
-// The class comment's invariant: P's two triangles are updated by bit-identical operations. An
-// asymmetry of one rounding is not damped by the recursion but grows like lambda^-n (Verhaegen
-// 1989, "Round-off error propagation in four generally-applicable, recursive, least-squares
-// estimation schemes", Automatica 25(3)); with lambda = 0.97 it broke the fit within ~1100
-// samples on aarch64 when unrolled code fused the two triangles' multiply-adds differently.
-TEST_CASE_TEMPLATE("ForgettingRls: P stays exactly symmetric", E, rowfold::ForgettingRls<double, 3>,
-                   rowfold::ForgettingRls<float, 3>, rowfold::ForgettingRls<double, 8>,
-                   rowfold::ForgettingRls<double, Eigen::Dynamic>) {
-  using S = typename E::Scalar;
-  constexpr int k = E::K == Eigen::Dynamic ? 5 : E::K;
-  typename E::Options o;
-  o.forgetting = 0.97;
-  E est(k, o);
-  std::mt19937_64 rng(11);
-  std::normal_distribution<double> n01(0, 1);
-  Eigen::Matrix<S, Eigen::Dynamic, 1> x(k);
-  for (int i = 0; i < 2000; ++i) {
-    for (int j = 0; j < k; ++j) x(j) = S(j + n01(rng));
-    REQUIRE(est.add(x, S(x.sum() + 0.1 * n01(rng))) == Status::ok);
-  }
-  REQUIRE(est.recursive());
-  const auto& P = est.covarianceFactor();
-  CHECK((P.array() == P.transpose().array()).all());
-}
+namespace {
+// A ForgettingRls type and the number of regressors to run it with.
+template <typename E, int Kr>
+struct RlsAt {
+  using Type = E;
+  static constexpr int k = Kr;
+};
+}  // namespace
 
-// The fit itself after the defect the test above pins: when P's two triangles drifted apart
-// (aarch64, before the copy), lambda = 0.97 broke the fit within ~1100 samples; without the copy
-// this test sees coefficients off by 1e2..1e5 there (measured with a driver under qemu-aarch64,
-// 2026-12-03). Reference: the exponentially weighted least-squares fit (weights
-// lambda^(n-1-i), intercept column) by Eigen's HouseholderQR in double, outside the estimator.
-// Tolerances: a few hundred times the differences seen on x86-64 and aarch64 (1.3e-14 double,
-// 6e-6 float).
-TEST_CASE_TEMPLATE("ForgettingRls at lambda = 0.97 over 2000 samples equals the weighted batch fit (HouseholderQR)", E,
-                   rowfold::ForgettingRls<double, 3>, rowfold::ForgettingRls<float, 3>,
-                   rowfold::ForgettingRls<double, 8>, rowfold::ForgettingRls<float, 8>,
-                   rowfold::ForgettingRls<double, Eigen::Dynamic>, rowfold::ForgettingRls<float, Eigen::Dynamic>) {
+// Two checks on one stream at lambda = 0.97 (2000 samples), with the windup guard on (the
+// default) and off:
+// - Up to kBothTrianglesUpTo regressors P's two triangles must be bit-identical. An asymmetry
+//   of one rounding is not damped by the recursion but grows like lambda^-n (Verhaegen 1989,
+//   "Round-off error propagation in four generally-applicable, recursive, least-squares
+//   estimation schemes", Automatica 25(3)); with lambda = 0.97 it broke the fit within ~1100
+//   samples on aarch64 when unrolled code fused the two triangles' multiply-adds differently.
+// - With the guard off, the fit itself: the exponentially weighted least-squares fit (weights
+//   lambda^(n-1-i), intercept column) by Eigen's HouseholderQR in double, outside the
+//   estimator. Without the triangle copy this sees coefficients off by 1e2..1e5 on aarch64
+//   (measured with a driver under qemu-aarch64, 2026-12-03). Tolerances: a few hundred times
+//   the differences seen on x86-64 and aarch64 (1.3e-14 double, 6e-6 float).
+// Double K = 20 (fixed and dynamic) and float K = 40 run the lower-triangle-only update (above
+// kBothTrianglesUpTo); the other types keep both triangles.
+TEST_CASE_TEMPLATE("ForgettingRls at lambda = 0.97: P exactly symmetric, and the fit equals the weighted batch fit "
+                   "(HouseholderQR)",
+                   R, RlsAt<rowfold::ForgettingRls<double, 3>, 3>, RlsAt<rowfold::ForgettingRls<float, 3>, 3>,
+                   RlsAt<rowfold::ForgettingRls<double, 8>, 8>, RlsAt<rowfold::ForgettingRls<float, 8>, 8>,
+                   RlsAt<rowfold::ForgettingRls<double, 20>, 20>,
+                   RlsAt<rowfold::ForgettingRls<double, Eigen::Dynamic>, 5>,
+                   RlsAt<rowfold::ForgettingRls<float, Eigen::Dynamic>, 5>,
+                   RlsAt<rowfold::ForgettingRls<double, Eigen::Dynamic>, 20>,
+                   RlsAt<rowfold::ForgettingRls<float, Eigen::Dynamic>, 40>) {
+  using E = typename R::Type;
   using S = typename E::Scalar;
-  constexpr int k = E::K == Eigen::Dynamic ? 5 : E::K;
+  constexpr int k = R::k;
   constexpr int n = 2000;
-  typename E::Options o;
-  o.forgetting = 0.97;
-  o.windup.enabled = false;  // plain exponential forgetting, as in the reference
-  E est(k, o);
-  std::mt19937_64 rng(11);
-  std::normal_distribution<double> n01(0, 1);
-  Eigen::MatrixXd A(n, k + 1);
-  Eigen::VectorXd b(n);
-  Eigen::Matrix<S, Eigen::Dynamic, 1> x(k);
-  for (int i = 0; i < n; ++i) {
-    for (int j = 0; j < k; ++j) x(j) = S(j + n01(rng));
-    const S y = S(x.sum() + 0.1 * n01(rng));
-    REQUIRE(est.add(x, y) == Status::ok);
-    const double w = std::pow(0.97, 0.5 * (n - 1 - i));
-    A(i, 0) = w;
-    A.row(i).tail(k) = w * x.template cast<double>().transpose();
-    b(i) = w * double(y);
+  for (const bool guard : {true, false}) {
+    CAPTURE(guard);
+    typename E::Options o;
+    o.forgetting = 0.97;
+    o.windup.enabled = guard;
+    E est(k, o);
+    std::mt19937_64 rng(11);
+    std::normal_distribution<double> n01(0, 1);
+    Eigen::MatrixXd A(n, k + 1);
+    Eigen::VectorXd b(n);
+    Eigen::Matrix<S, Eigen::Dynamic, 1> x(k);
+    for (int i = 0; i < n; ++i) {
+      for (int j = 0; j < k; ++j) x(j) = S(j + n01(rng));
+      const S y = S(x.sum() + 0.1 * n01(rng));
+      REQUIRE(est.add(x, y) == Status::ok);
+      const double w = std::pow(0.97, 0.5 * (n - 1 - i));
+      A(i, 0) = w;
+      A.row(i).tail(k) = w * x.template cast<double>().transpose();
+      b(i) = w * double(y);
+    }
+    REQUIRE(est.recursive());
+    const auto& P = est.covarianceFactor();
+    if (k <= E::kBothTrianglesUpTo) CHECK((P.array() == P.transpose().array()).all());
+    if (guard) continue;  // held steps make the guarded fit differ from the plain weighted one
+    const Eigen::VectorXd ref = A.householderQr().solve(b);
+    const auto sol = est.solve();
+    REQUIRE(sol.status == Status::ok);
+    const double tol = std::is_same_v<S, float> ? 2e-4 : 1e-10;
+    CHECK(std::abs(double(sol.intercept) - ref(0)) <= tol * (1 + std::abs(ref(0))));
+    for (int j = 0; j < k; ++j)
+      CHECK(std::abs(double(sol.coefficients(j)) - ref(j + 1)) <= tol * (1 + std::abs(ref(j + 1))));
   }
-  REQUIRE(est.recursive());
-  const Eigen::VectorXd ref = A.householderQr().solve(b);
-  const auto sol = est.solve();
-  REQUIRE(sol.status == Status::ok);
-  const double tol = std::is_same_v<S, float> ? 2e-4 : 1e-10;
-  CHECK(std::abs(double(sol.intercept) - ref(0)) <= tol * (1 + std::abs(ref(0))));
-  for (int j = 0; j < k; ++j) CHECK(std::abs(double(sol.coefficients(j)) - ref(j + 1)) <= tol * (1 + std::abs(ref(j + 1))));
 }
 
 TEST_CASE("guards: snapshots carry the guard state (bit-identical continuation) and bad options are refused") {

@@ -37,9 +37,11 @@ struct ForgettingRlsOptions : FitOptions {
 ///   g = P phi,  alpha = lambda + phi'g,  e = eta - phi'theta,
 ///   theta += g e / alpha,  P = (P - g g'/alpha) / lambda,  SSE = lambda SSE + lambda e^2/alpha.
 /// ```
-/// P is kept as a full matrix; after each update the lower triangle is copied over the upper
-/// (symmetry by construction, Verhaegen 1989). A row enters unscaled with its weight delta
-/// (NUMERICS §4.1), so no square root is taken.
+/// Up to kBothTrianglesUpTo regressors P is kept as a full matrix, and after each update the
+/// lower triangle is copied over the upper (symmetry by construction, Verhaegen 1989); above,
+/// only the lower triangle is updated (the cheaper choice there, bench/README.md "P-triangle
+/// round"). A row enters unscaled with its weight delta (NUMERICS §4.1), so no square root is
+/// taken.
 /// Coefficients are current after every sample: solve() costs O(K).
 ///
 /// **Start:** exact initialization by default (see RlsStart) — the first samples are
@@ -87,6 +89,10 @@ class ForgettingRls : public EstimatorBase<ForgettingRls<Scalar_, K_, MaxK_>, Sc
   static constexpr bool guardable = true;  ///< the windup guard and outlier gate apply
   static constexpr bool positionalAges = false;  ///< ages live in the state: addDelayed/advance are exact
   static constexpr bool deferredCentering = false;  ///< folds at once (see EstimatorBase::syncCentering)
+  /// Up to this many regressors both triangles of P are updated (then copied, so P is exactly
+  /// symmetric); above it only the lower triangle is (see sweepP). Twice as many for float,
+  /// whose SIMD packets hold twice the entries (measured, bench/README.md "P-triangle round").
+  static constexpr Eigen::Index kBothTrianglesUpTo = sizeof(Scalar_) < sizeof(double) ? 32 : 16;
 
   /// Fixed K. status() reports invalid options.
   explicit ForgettingRls(const Options& options = Options()) : ForgettingRls(K_ == Eigen::Dynamic ? 0 : K_, options) {}
@@ -111,7 +117,9 @@ class ForgettingRls : public EstimatorBase<ForgettingRls<Scalar_, K_, MaxK_>, Sc
   Status status() const { return m_badOptions ? Status::invalid_options : Base::status(); }
   /// True once P and theta are being updated recursively (after the exact start).
   bool recursive() const { return m_recursive; }
-  /// P = (X~'X~)^-1 (lower triangle valid; meaningful when recursive(), then both triangles).
+  /// P = (X~'X~)^-1, meaningful when recursive(). The lower triangle is always valid; the
+  /// upper one too (P exactly symmetric) when regressors() <= kBothTrianglesUpTo, else it is
+  /// stale: read P as `covarianceFactor().selfadjointView<Eigen::Lower>()`.
   const Matrix& covarianceFactor() const { return m_P; }
   /// Current slopes theta (meaningful when recursive(); before, the storage holds m = X~'y~).
   const Vector& theta() const { return m_theta; }
@@ -189,8 +197,9 @@ class ForgettingRls : public EstimatorBase<ForgettingRls<Scalar_, K_, MaxK_>, Sc
     // The row enters with weight delta (phi and eta unscaled): with g = P phi,
     //   alpha = lambda + delta phi'g,  kappa = delta / alpha,  theta += kappa e g,
     //   P = (P - kappa g g') / lambda,  SSE = lambda (SSE + kappa e^2).
-    // P is kept as a full symmetric matrix (both triangles) so that every pass is a contiguous
-    // column sweep; sweepP keeps the two triangles identical.
+    // Up to kBothTrianglesUpTo regressors P is kept as a full symmetric matrix (both
+    // triangles) so that every pass is a contiguous column sweep; sweepP keeps the two
+    // triangles identical. Above, only the lower triangle (see sweepP).
     // On the guarded path priorInfo has just formed g = P d, d'g and e for this very row, P and
     // theta (the same expressions, so the same bits).
     const bool prior = this->priorOnRow();
@@ -215,16 +224,41 @@ class ForgettingRls : public EstimatorBase<ForgettingRls<Scalar_, K_, MaxK_>, Sc
     if (!positive) m_lost = true;
   }
 
+  /// Whether only P's lower triangle is kept (regressors() > kBothTrianglesUpTo).
+  bool lowerOnly() const {
+    if constexpr (K_ != Eigen::Dynamic)
+      return K_ > kBothTrianglesUpTo;
+    else
+      return this->regressors() > kBothTrianglesUpTo;
+  }
+
   /// P = P il - (g g') s (Aged; else P - (g g') s), column by column, each entry formed as
-  /// (g_i g_j) s; then the lower triangle is copied over the upper (exact symmetry, see below).
-  /// Fixed K: Eigen packet code with a known trip count (GCC unrolls a plain loop of small known
-  /// count into scalar code before its vectorizer sees it: about 30 % more instructions at
-  /// K = 8..32). Dynamic K: a plain loop, which the vectorizer handles without Eigen's alignment
-  /// peeling on every column. Updating only the lower triangle (no copy) was measured and is
-  /// slower at fixed K up to 16 (bench/README.md, "P-triangle experiment").
+  /// (g_i g_j) s. Instructions per sample measured by K (bench/README.md, "P-triangle round"):
+  /// - up to kBothTrianglesUpTo: every entry, then the lower triangle is copied over the upper
+  ///   (exact symmetry, see below). Fixed K: Eigen packet code with a known trip count (GCC
+  ///   unrolls a plain loop of small known count into scalar code before its vectorizer sees
+  ///   it: about 30 % more instructions at K = 8..32); dynamic K: a plain loop, which the
+  ///   vectorizer handles without Eigen's alignment peeling on every column. Updating only the
+  ///   lower triangle costs up to 1.7x more instructions here (short runtime-length columns);
+  /// - above: only the lower triangle (half the arithmetic, no copy, nothing to keep symmetric).
   template <bool Aged>
   void sweepP(Scalar il, Scalar s) {
     const Eigen::Index k = this->regressors();
+    Scalar* const P = m_P.data();
+    const Scalar* __restrict g = m_gain.data();
+    if (lowerOnly()) {
+      for (Eigen::Index j = 0; j < k; ++j) {
+        Scalar* __restrict pj = P + j * k;
+        const Scalar gj = g[j];
+        for (Eigen::Index i = j; i < k; ++i) {
+          if constexpr (Aged)
+            pj[i] = pj[i] * il - (g[i] * gj) * s;
+          else
+            pj[i] -= (g[i] * gj) * s;
+        }
+      }
+      return;
+    }
     if constexpr (K_ != Eigen::Dynamic) {
       for (Eigen::Index j = 0; j < k; ++j) {
         if constexpr (Aged)
@@ -233,8 +267,6 @@ class ForgettingRls : public EstimatorBase<ForgettingRls<Scalar_, K_, MaxK_>, Sc
           m_P.col(j) -= (m_gain * m_gain(j)) * s;
       }
     } else {
-      Scalar* const P = m_P.data();
-      const Scalar* __restrict g = m_gain.data();
       for (Eigen::Index j = 0; j < k; ++j) {
         Scalar* __restrict pj = P + j * k;
         const Scalar gj = g[j];
@@ -255,16 +287,28 @@ class ForgettingRls : public EstimatorBase<ForgettingRls<Scalar_, K_, MaxK_>, Sc
       for (Eigen::Index i = 0; i < j; ++i) m_P(i, j) = m_P(j, i);
   }
 
-  /// g = P phi for the full symmetric P, one dot product per entry (P's columns are its rows):
-  /// each g_i is summed in a register, with no store-to-load chain through g between columns.
+  /// g = P phi. Both triangles kept: one dot product per entry (P's columns are its rows), each
+  /// g_i summed in a register, with no store-to-load chain through g between columns. Lower
+  /// triangle only: per column j, g_j gets the dot product of the column's lower part with
+  /// phi's tail, and the entries below j get phi_j times the column below the diagonal.
   template <typename VD, typename GD>
   void gainOf(const VD& phi, GD& g) const {
+    const Eigen::Index k = this->regressors();
+    if (lowerOnly()) {
+      for (Eigen::Index j = 0; j < k; ++j) g(j) = Scalar(0);
+      for (Eigen::Index j = 0; j < k; ++j) {
+        const Eigen::Index below = k - 1 - j;
+        g(j) += m_P.col(j).tail(below + 1).dot(phi.tail(below + 1));
+        g.tail(below) += phi(j) * m_P.col(j).tail(below);
+      }
+      return;
+    }
     for (Eigen::Index i = 0; i < g.size(); ++i) g(i) = m_P.col(i).dot(phi);
   }
 
   void ageState(Scalar f) {
     if (m_recursive) {
-      m_P /= f;  // both triangles (kept symmetric)
+      m_P /= f;  // both triangles (the upper one is stale where only the lower is kept)
       m_sse *= f;
     } else {
       m_P.template triangularView<Eigen::Lower>() *= f;
