@@ -5,7 +5,9 @@
 ///  - Eigen's runtime allocation fence (EIGEN_RUNTIME_NO_MALLOC + set_is_malloc_allowed(false)),
 ///    with eigen_assert redirected to a counter (the method of Eigen's own test/nomalloc.cpp);
 ///  - a counting global operator new/delete (any C++ allocation) while `countNew` is set.
-/// Defines the replacement operators, so include it in one translation unit per executable.
+/// Defines the replacement operators, so include it in one translation unit per executable; the
+/// other translation units of that executable define ROWFOLD_ALLOC_FENCE_CONFIG_ONLY first and
+/// include it too, so that all see the same Eigen configuration (one definition rule).
 #pragma once
 
 #if defined(__GNUC__) && !defined(__clang__)
@@ -29,6 +31,7 @@ inline std::atomic<bool> countNew{false};
     if (!(x)) rowfold_test::eigenAssertHits.fetch_add(1); \
   } while (false)
 
+#ifndef ROWFOLD_ALLOC_FENCE_CONFIG_ONLY
 void* operator new(std::size_t n) {
   if (rowfold_test::countNew.load()) rowfold_test::newCalls.fetch_add(1);
   if (void* p = std::malloc(n ? n : 1)) return p;
@@ -39,3 +42,4 @@ void operator delete(void* p) noexcept { std::free(p); }
 void operator delete[](void* p) noexcept { std::free(p); }
 void operator delete(void* p, std::size_t) noexcept { std::free(p); }
 void operator delete[](void* p, std::size_t) noexcept { std::free(p); }
+#endif
