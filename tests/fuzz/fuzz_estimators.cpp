@@ -6,7 +6,8 @@
 // change alarm) and drives addRows, merge, relax, advance and addDelayed; a sample the outlier gate
 // refuses must leave the snapshot image byte-identical (only the diagnostic counters change).
 // A first byte >= 0xF0 drives MultiResponse (two responses) over each estimator instead,
-// including its blocked addRows and a snapshot/restore round trip of the state reached.
+// including its blocked addRows and a snapshot/restore round trip of the state reached; a first
+// byte in [0xE0, 0xF0) drives ForgettingRls with only P's lower triangle kept (k = 20 and 40).
 #include <cstddef>
 #include <cstdint>
 #include <cstdlib>
@@ -187,10 +188,63 @@ void runMulti(const std::uint8_t* data, std::size_t size) {
   }
 }
 
+// ForgettingRls above kBothTrianglesUpTo (only P's lower triangle kept): double k = 20, float
+// k = 40, dynamic K, started from a prior so that the recursion runs from the first sample. Each
+// sample takes k signed bytes (x_j = byte / 16) and y; guards and queries as in run().
+template <typename Scalar>
+void runWide(const std::uint8_t* data, std::size_t size, Eigen::Index k) {
+  using E = rowfold::ForgettingRls<Scalar, Eigen::Dynamic>;
+  Input in{data, size};
+  std::uint8_t cfg = 0;
+  double lambda = 1;
+  if (!in.take(cfg) || !in.take(lambda)) return;
+  typename E::Options o;
+  o.forgetting = lambda;
+  o.start = rowfold::RlsStart::prior;
+  o.intercept = (cfg & 1) ? rowfold::Intercept::none : rowfold::Intercept::fit;
+  o.outliers.enabled = (cfg & 2) != 0;
+  o.outliers.warmup = 3;
+  o.outliers.huber = (cfg & 4) != 0;
+  o.windup.variableForgetting = (cfg & 16) != 0;
+  E est(k, o);
+  require(k > E::kBothTrianglesUpTo);
+  typename E::Vector x(k);
+  std::uint8_t op = 0;
+  while (in.take(op)) {
+    for (Eigen::Index j = 0; j < k; ++j) {
+      std::int8_t b = 0;
+      if (!in.take(b)) return;
+      x(j) = Scalar(b) / Scalar(16);
+    }
+    Scalar y = 0;
+    if (!in.take(y)) return;
+    const std::vector<unsigned char> imageBefore = image(est);
+    const rowfold::Status st = est.add(x, y);
+    if (st != rowfold::Status::ok) require(image(est) == imageBefore);
+    if ((op & 0x0E) == 0x0A) (void)est.relax(static_cast<Scalar>(0.5));
+    if ((op & 0x0E) == 0x0C) (void)est.advance(op >> 4);
+    if ((op & 0x30) == 0x30) {
+      const auto sol = est.solve();
+      if (sol.status == rowfold::Status::ok && !sol.flags.any()) require(sol.coefficients.allFinite());
+      (void)est.summarize(Scalar(0.95));
+      (void)est.conditioning();
+      (void)est.predictionInterval(x, Scalar(0.9));
+    }
+    if ((op & 0xC0) == 0xC0) est.reset();
+  }
+}
+
 }  // namespace
 
 extern "C" int LLVMFuzzerTestOneInput(const std::uint8_t* data, std::size_t size) {
   if (size < 1) return 0;
+  if (data[0] >= 0xE0 && data[0] < 0xF0) {  // ForgettingRls, lower triangle only
+    if (data[0] & 1)
+      runWide<float>(data + 1, size - 1, 40);
+    else
+      runWide<double>(data + 1, size - 1, 20);
+    return 0;
+  }
   if (data[0] >= 0xF0) {  // MultiResponse
     switch (data[0] % 4) {
       case 0: runMulti<rowfold::GivensQr<double, 3>>(data + 1, size - 1); break;
