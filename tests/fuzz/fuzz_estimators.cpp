@@ -43,6 +43,23 @@ std::vector<unsigned char> image(const Est& est) {
   return buf;
 }
 
+// The ops every single-response stream shares: relax, advance, the queries (solve() never
+// returns non-finite coefficients without a status or flag saying why) and reset.
+template <typename Est, typename XD>
+void relaxAdvanceQueryReset(Est& est, std::uint8_t op, const XD& x) {
+  using Scalar = typename Est::Scalar;
+  if ((op & 0x0E) == 0x0A) (void)est.relax(static_cast<Scalar>(0.5));
+  if ((op & 0x0E) == 0x0C) (void)est.advance(op >> 4);
+  if ((op & 0x30) == 0x30) {
+    const auto sol = est.solve();
+    if (sol.status == rowfold::Status::ok && !sol.flags.any()) require(sol.coefficients.allFinite());
+    (void)est.summarize(Scalar(0.95));
+    (void)est.conditioning();
+    (void)est.predictionInterval(x, Scalar(0.9));
+  }
+  if ((op & 0xC0) == 0xC0) est.reset();
+}
+
 template <typename Est>
 void exercise(Est& est, Input& in) {
   using Scalar = typename Est::Scalar;
@@ -78,16 +95,7 @@ void exercise(Est& est, Input& in) {
       Est part = est;  // merge a copy of the current state into itself (ages double)
       (void)est.merge(part);
     }
-    if ((op & 0x0E) == 0x0A) (void)est.relax(static_cast<Scalar>(0.5));
-    if ((op & 0x0E) == 0x0C) (void)est.advance(op >> 4);
-    if ((op & 0x30) == 0x30) {
-      const auto sol = est.solve();
-      if (sol.status == rowfold::Status::ok && !sol.flags.any()) require(sol.coefficients.allFinite());
-      (void)est.summarize(Scalar(0.95));
-      (void)est.conditioning();
-      (void)est.predictionInterval(x, Scalar(0.9));
-    }
-    if ((op & 0xC0) == 0xC0) est.reset();
+    relaxAdvanceQueryReset(est, op, x);
   }
 }
 
@@ -221,16 +229,7 @@ void runWide(const std::uint8_t* data, std::size_t size, Eigen::Index k) {
     const std::vector<unsigned char> imageBefore = image(est);
     const rowfold::Status st = est.add(x, y);
     if (st != rowfold::Status::ok) require(image(est) == imageBefore);
-    if ((op & 0x0E) == 0x0A) (void)est.relax(static_cast<Scalar>(0.5));
-    if ((op & 0x0E) == 0x0C) (void)est.advance(op >> 4);
-    if ((op & 0x30) == 0x30) {
-      const auto sol = est.solve();
-      if (sol.status == rowfold::Status::ok && !sol.flags.any()) require(sol.coefficients.allFinite());
-      (void)est.summarize(Scalar(0.95));
-      (void)est.conditioning();
-      (void)est.predictionInterval(x, Scalar(0.9));
-    }
-    if ((op & 0xC0) == 0xC0) est.reset();
+    relaxAdvanceQueryReset(est, op, x);
   }
 }
 
