@@ -43,6 +43,17 @@ std::vector<unsigned char> image(const Est& est) {
   return buf;
 }
 
+// The head of every stream: a configuration byte (bit 0: no intercept; the other bits are the
+// caller's) and the forgetting factor, into o.
+template <typename Options>
+bool readOptions(Input& in, std::uint8_t& cfg, Options& o) {
+  double lambda = 1;
+  if (!in.take(cfg) || !in.take(lambda)) return false;
+  o.forgetting = lambda;
+  o.intercept = (cfg & 1) ? rowfold::Intercept::none : rowfold::Intercept::fit;
+  return true;
+}
+
 // The ops every single-response stream shares: relax, advance, the queries (solve() never
 // returns non-finite coefficients without a status or flag saying why) and reset.
 template <typename Est, typename XD>
@@ -103,11 +114,8 @@ template <template <typename, int, int> class E, typename Scalar>
 void run(const std::uint8_t* data, std::size_t size) {
   Input in{data, size};
   std::uint8_t cfg = 0;
-  double lambda = 1;
-  if (!in.take(cfg) || !in.take(lambda)) return;
   typename E<Scalar, 3, 3>::Options o;
-  o.forgetting = lambda;
-  o.intercept = (cfg & 1) ? rowfold::Intercept::none : rowfold::Intercept::fit;
+  if (!readOptions(in, cfg, o)) return;
   if constexpr (E<Scalar, 3, 3>::guardable) {
     o.outliers.enabled = (cfg & 2) != 0;
     o.outliers.warmup = 3;
@@ -132,11 +140,8 @@ void runMulti(const std::uint8_t* data, std::size_t size) {
   using Multi = rowfold::MultiResponse<Single, 2>;
   Input in{data, size};
   std::uint8_t cfg = 0;
-  double lambda = 1;
-  if (!in.take(cfg) || !in.take(lambda)) return;
   typename Single::Options o;
-  o.forgetting = lambda;
-  o.intercept = (cfg & 1) ? rowfold::Intercept::none : rowfold::Intercept::fit;
+  if (!readOptions(in, cfg, o)) return;
   o.windup.enabled = (cfg & 2) == 0;
   Multi est(o);
   Eigen::Matrix<Scalar, 3, 1> x;
@@ -204,12 +209,9 @@ void runWide(const std::uint8_t* data, std::size_t size, Eigen::Index k) {
   using E = rowfold::ForgettingRls<Scalar, Eigen::Dynamic>;
   Input in{data, size};
   std::uint8_t cfg = 0;
-  double lambda = 1;
-  if (!in.take(cfg) || !in.take(lambda)) return;
   typename E::Options o;
-  o.forgetting = lambda;
+  if (!readOptions(in, cfg, o)) return;
   o.start = rowfold::RlsStart::prior;
-  o.intercept = (cfg & 1) ? rowfold::Intercept::none : rowfold::Intercept::fit;
   o.outliers.enabled = (cfg & 2) != 0;
   o.outliers.warmup = 3;
   o.outliers.huber = (cfg & 4) != 0;
