@@ -3,7 +3,13 @@
 
 # rowfold_need_packages PKG...: installs the Debian packages that `dpkg -s` does not report as
 # installed (as root directly, else through passwordless sudo); otherwise lists them and exits 1.
+# With ROWFOLD_LIST_PACKAGES=1 it prints PKG... one per line and ends the script (exit 0), so
+# that .ci/run can collect every stage's packages and install them ahead of the stage.
 rowfold_need_packages() {
+  if [ "${ROWFOLD_LIST_PACKAGES:-0}" = 1 ]; then
+    printf '%s\n' "$@"
+    exit 0
+  fi
   local missing=()
   local pkg
   for pkg in "$@"; do
