@@ -17,7 +17,7 @@ namespace {
 using MatrixXd = Eigen::MatrixXd;
 using VectorXd = Eigen::VectorXd;
 #ifdef ROWFOLD_BENCH_SMOKE
-using BatchKs = std::integer_sequence<int, 4, 8>;
+using BatchKs = std::integer_sequence<int, 8>;
 #else
 using BatchKs = std::integer_sequence<int, 4, 8, 16, 64>;
 #endif

@@ -1,6 +1,6 @@
 #!/usr/bin/env bash
 # Builds the Google Benchmark suite (bench/) and runs its smoke test: a handful of benchmarks,
-# briefly, proving the bench builds and runs (built with ROWFOLD_BENCH_SMOKE: K in {4, 8} only).
+# briefly, proving the bench builds and runs (built with ROWFOLD_BENCH_SMOKE: K = 8 only).
 # Full measurements are manual (bench/README.md).
 # Usage: ./scripts/bench.sh   (from any directory; build tree build-bench-smoke/)
 # ROWFOLD_BENCH_JOBS (default 2) sets the build parallelism.
