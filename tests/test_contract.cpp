@@ -2,6 +2,16 @@
 // References: exact-model recovery (data generated from known coefficients, invented here);
 // weighted and exponentially weighted least squares definitions (Björck 1996 §4.4; NUMERICS §1.1)
 // checked across estimators against BatchQr, which applies the weights lambda^age explicitly.
+//
+// The same types also prove that the hot path never touches the heap (last section). Both halves
+// share one translation unit so that the 24 estimator types are compiled once for both: the
+// allocation fence (support/alloc_fence.hpp) must then come first, with
+// EIGEN_STACK_ALLOCATION_LIMIT = 0 so that Eigen's hidden stack temporaries count as heap (the
+// method of Eigen's own test/nomalloc.cpp). Outside the fenced calls it only counts: the contract
+// cases run as they would without it, with Eigen's assertions counted instead of ignored.
+#define EIGEN_STACK_ALLOCATION_LIMIT 0
+#include "support/alloc_fence.hpp"
+
 #include <doctest/doctest.h>
 
 #include <cmath>
@@ -338,4 +348,134 @@ TEST_CASE("NormalEquations addRows: a bad row in a late block leaves the state b
   lateBlockRefusal(rowfold::NormalEquations<double, 3>());
   lateBlockRefusal(rowfold::NormalEquations<double, Eigen::Dynamic>(3, rowfold::NormalEquationsOptions()));
   lateBlockRefusal(rowfold::GivensQr<double, 3>());  // the two-pass path, same contract
+}
+
+// ---- No heap in the hot path ----
+// Every estimator x Scalar x fixed/dynamic K (dynamic: after construction) runs add / addRows /
+// merge / relax / advance / addDelayed / solveInto / summarizeInto / conditioningInto /
+// covariance / correlation / predict / predictionInterval / snapshot / restore inside the fence:
+// Eigen's runtime allocation check (EIGEN_RUNTIME_NO_MALLOC + set_is_malloc_allowed(false)) and
+// a counting global operator new/delete (any C++ allocation).
+namespace {
+
+using rowfold::Status;
+
+// The contract's types (K = 3, BatchQr capacity 256), with every guard path switched on.
+template <template <typename, int, int> class E, typename S, bool Dyn>
+struct GuardedMake {
+  using Type = E<S, Dyn ? Eigen::Dynamic : 3, Dyn ? Eigen::Dynamic : 3>;
+  using Scalar = S;
+  static Type make() {
+    typename Type::Options o;
+    o.forgetting = 0.995;  // windup guard active on the factor estimators
+    if constexpr (Type::guardable) {  // every guard path: outlier gate, Huber, regularization, VFF, CUSUM
+      o.outliers.enabled = true;
+      o.outliers.warmup = 5;
+      o.outliers.huber = true;
+      o.windup.regularization = 1e-3;
+      o.windup.variableForgetting = true;
+      o.windup.changeThreshold = 5;
+    }
+    return Type(3, o);
+  }
+};
+#define ROWFOLD_NOHEAP_TYPES(S)                                                                \
+  GuardedMake<Batch, S, false>, GuardedMake<rowfold::GivensQr, S, false>,                      \
+      GuardedMake<rowfold::NormalEquations, S, false>, GuardedMake<rowfold::ForgettingRls, S, false>, \
+      GuardedMake<Batch, S, true>, GuardedMake<rowfold::GivensQr, S, true>,                    \
+      GuardedMake<rowfold::NormalEquations, S, true>, GuardedMake<rowfold::ForgettingRls, S, true>
+
+// Deterministic invented data without <random> (a 64-bit LCG, Knuth MMIX constants).
+struct Lcg {
+  unsigned long long s = 12345;
+  double next() {
+    s = s * 6364136223846793005ULL + 1442695040888963407ULL;
+    return double(s >> 11) / double(1ULL << 53) - 0.5;
+  }
+};
+
+}  // namespace
+
+TEST_CASE_TEMPLATE_DEFINE("no heap in the hot path", F, noheap_id) {
+  using Est = typename F::Type;
+  using Scalar = typename F::Scalar;
+  constexpr int k = 3;
+  // Construction and output objects may allocate (dynamic K); nothing after that.
+  Est est = F::make();
+  Est other = F::make();
+  Est part = F::make();
+  typename Est::SolutionType sol(k);
+  typename Est::SummaryType sum(k);
+  typename Est::ConditioningType cond(k);
+  typename Est::Matrix cov(k, k), corr(k, k);
+  Eigen::Matrix<Scalar, Eigen::Dynamic, Eigen::Dynamic> X(8, k);
+  Eigen::Matrix<Scalar, Eigen::Dynamic, 1> y(8), x0(k);
+  Lcg g;
+  for (int i = 0; i < 8; ++i) {
+    for (int j = 0; j < k; ++j) X(i, j) = Scalar(g.next() + j);
+    // the model of the fenced samples below, so that the outlier gate passes them
+    y(i) = Scalar(1) + X(i, 0) - Scalar(2) * X(i, 2) + Scalar(0.01) * Scalar(g.next());
+  }
+  x0.setConstant(Scalar(0.5));
+  for (int i = 0; i < 8; ++i) REQUIRE(part.add(Eigen::Matrix<Scalar, 3, 1>(X.row(i).transpose()), y(i)) == Status::ok);
+  std::vector<unsigned char> image(est.snapshotSize() + 64 * k * 8 * sizeof(Scalar));
+
+  rowfold_test::eigenAssertHits = 0;
+  rowfold_test::newCalls = 0;
+  Eigen::internal::set_is_malloc_allowed(false);
+  rowfold_test::countNew = true;
+
+  Eigen::Matrix<Scalar, 3, 1> x;
+  for (int i = 0; i < 60; ++i) {
+    for (int j = 0; j < k; ++j) x(j) = Scalar(g.next() + j);
+    const Scalar yy = Scalar(1) + x(0) - Scalar(2) * x(2) + Scalar(0.01) * Scalar(g.next());
+    (void)est.add(x, yy);
+  }
+  const Status rows = est.addRows(X, y);
+  const Status merged = est.merge(part);
+  (void)est.relax(Scalar(0.9));
+  (void)est.advance(2);
+  (void)est.addDelayed(x, Scalar(1), 3);
+  (void)est.solveInto(sol);
+  (void)est.summarizeInto(sum, Scalar(0.95));
+  (void)est.conditioningInto(cond);
+  const Status covStatus = est.covariance(cov);
+  (void)est.correlation(corr);
+  const Scalar p = est.predict(x0);
+  const auto pi = est.predictionInterval(x0, Scalar(0.9));
+  std::size_t written = 0;
+  const Status snap = est.snapshot(image.data(), image.size(), written);
+  const Status back = other.restore(image.data(), written);
+  (void)other.add(x, Scalar(1));
+
+  rowfold_test::countNew = false;
+  Eigen::internal::set_is_malloc_allowed(true);
+
+  CHECK(rowfold_test::eigenAssertHits.load() == 0);
+  CHECK(rowfold_test::newCalls.load() == 0);
+  // The calls did real work (a fence around nothing would prove nothing).
+  CHECK(rows == Status::ok);
+  CHECK(merged == Status::ok);
+  CHECK(covStatus == Status::ok);
+  CHECK(sol.status == Status::ok);
+  CHECK(sum.status == Status::ok);
+  CHECK(cond.status == Status::ok);
+  CHECK(pi.status == Status::ok);
+  CHECK(std::isfinite(double(p)));
+  CHECK(snap == Status::ok);
+  CHECK(back == Status::ok);
+  CHECK(sol.coefficients.allFinite());
+  CHECK(sol.rank == k);
+}
+
+TEST_CASE_TEMPLATE_INVOKE(noheap_id, ROWFOLD_WITH_FLOAT(ROWFOLD_NOHEAP_TYPES(float)) ROWFOLD_NOHEAP_TYPES(double)
+                          ROWFOLD_WITH_LONG_DOUBLE(ROWFOLD_NOHEAP_TYPES(long double)));
+
+TEST_CASE("the fence itself works: a dynamic Eigen allocation is caught") {
+  rowfold_test::eigenAssertHits = 0;
+  Eigen::internal::set_is_malloc_allowed(false);
+  Eigen::VectorXd v(16);  // must trip the fence
+  Eigen::internal::set_is_malloc_allowed(true);
+  CHECK(rowfold_test::eigenAssertHits.load() > 0);
+  v.setZero();
 }

@@ -1,7 +1,7 @@
 /// @file
 /// Test support: the allocation fence of the no-heap proofs. Include it FIRST in a test file
 /// (before any Eigen or rowfold header); define EIGEN_STACK_ALLOCATION_LIMIT before it to also
-/// count Eigen's hidden stack temporaries as heap (as tests/test_no_heap.cpp does).
+/// count Eigen's hidden stack temporaries as heap (as tests/test_contract.cpp does for its no-heap proof).
 ///  - Eigen's runtime allocation fence (EIGEN_RUNTIME_NO_MALLOC + set_is_malloc_allowed(false)),
 ///    with eigen_assert redirected to a counter (the method of Eigen's own test/nomalloc.cpp);
 ///  - a counting global operator new/delete (any C++ allocation) while `countNew` is set.
