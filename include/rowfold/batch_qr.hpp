@@ -45,9 +45,9 @@ struct BatchQrOptions : FitOptions {
 /// u kappa_s << 1.
 ///
 /// **Cost:** add O(K) (validates and stores the row; its step of the base's centering record is
-/// deferred and run, bit-identically, when the record is read: count(), weightSum(), every query,
-/// centering(), merge, snapshot, relax; O(K) per deferred row); solve O(n K^2) plus O(n K) per
-/// refinement sweep;
+/// deferred and run, with the fold's operations in arrival order, when the record is read:
+/// count(), weightSum(), every query, centering(), merge, snapshot, relax; O(K) per deferred
+/// row); solve O(n K^2) plus O(n K) per refinement sweep;
 /// memory capacity (K + 2) scalars of rows plus capacity (K + 4) of workspace (n = rows stored).
 /// Rows are kept in a fixed (Capacity) or runtime (options.capacity) buffer; when it is full,
 /// add returns Status::capacity_full and leaves the state untouched.
@@ -224,8 +224,12 @@ class BatchQr : public EstimatorBase<BatchQr<Scalar_, K_, Capacity_, MaxK_>, Sca
   /// Commits the rows stored since the last commit (the newest m_pending rows, oldest first) to
   /// the base's centering with exactly the operations the base's fold() runs per sample
   /// (Centering::centeredRow, then commitStep, lambda the nominal forgetting factor: BatchQr has
-  /// no guard to change it), so means, W, F, F2, Syy and the count are bit-identical to eager
-  /// centering. The stored x, y, w are the sample's own (relax() commits before it scales w).
+  /// no guard to change it), so means, W, F, F2, Syy and the count are those of eager centering:
+  /// bit for bit where the compiler does not contract multiply-adds (x86-64 portable builds), to
+  /// rounding where it does (aarch64, -march with FMA: g++ fuses the same source differently in
+  /// different inlining contexts). When the rows are committed never changes the result: the
+  /// record read after every row equals, bit for bit, the record read once at the end.
+  /// The stored x, y, w are the sample's own (relax() commits before it scales w).
   /// O(K) per pending row; called by the base before any read of the centering.
   void syncCentering() const {
     if (m_pending == 0) return;

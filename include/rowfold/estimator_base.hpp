@@ -766,7 +766,8 @@ class EstimatorBase {
   /// Estimators whose `deferredCentering` is true (BatchQr: it keeps the raw rows) store a sample
   /// with `storeRow(x, y, w)` and commit it to the centering later, in `syncCentering() const`,
   /// with the same centeredRow/commitStep operations fold() would have run, in arrival order, so
-  /// the record is bit-identical. The base calls syncCentering before every read of the
+  /// the record is the eager one (bit for bit without FMA contraction; see
+  /// BatchQr::syncCentering). The base calls syncCentering before every read of the
   /// centering (centering(), merge, snapshot, relax/advance, addDelayed); this default (for the
   /// estimators that fold at once) does nothing.
   void syncCentering() const {}
