@@ -420,10 +420,7 @@ TEST_CASE_TEMPLATE_DEFINE("no heap in the hot path", F, noheap_id) {
   for (int i = 0; i < 8; ++i) REQUIRE(part.add(Eigen::Matrix<Scalar, 3, 1>(X.row(i).transpose()), y(i)) == Status::ok);
   std::vector<unsigned char> image(est.snapshotSize() + 64 * k * 8 * sizeof(Scalar));
 
-  rowfold_test::eigenAssertHits = 0;
-  rowfold_test::newCalls = 0;
-  Eigen::internal::set_is_malloc_allowed(false);
-  rowfold_test::countNew = true;
+  rowfold_test::fenceOn();
 
   Eigen::Matrix<Scalar, 3, 1> x;
   for (int i = 0; i < 60; ++i) {
@@ -448,8 +445,7 @@ TEST_CASE_TEMPLATE_DEFINE("no heap in the hot path", F, noheap_id) {
   const Status back = other.restore(image.data(), written);
   (void)other.add(x, Scalar(1));
 
-  rowfold_test::countNew = false;
-  Eigen::internal::set_is_malloc_allowed(true);
+  rowfold_test::fenceOff();
 
   CHECK(rowfold_test::eigenAssertHits.load() == 0);
   CHECK(rowfold_test::newCalls.load() == 0);

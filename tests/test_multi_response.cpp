@@ -401,10 +401,7 @@ TEST_CASE("Fixed sizes never touch the heap") {
   unsigned char buf[4096];
   std::size_t written = 0;
   Stream st;
-  rowfold_test::eigenAssertHits = 0;
-  rowfold_test::newCalls = 0;
-  Eigen::internal::set_is_malloc_allowed(false);
-  rowfold_test::countNew = true;
+  rowfold_test::fenceOn();
   for (int i = 0; i < 30; ++i) {
     const Eigen::Vector3d x = st.x(), y = st.y(x);
     g.add(x, y.head<2>());
@@ -435,8 +432,7 @@ TEST_CASE("Fixed sizes never touch the heap") {
     r.snapshot(buf, sizeof buf, written);
     r.restore(buf, written);
   }
-  rowfold_test::countNew = false;
-  Eigen::internal::set_is_malloc_allowed(true);
+  rowfold_test::fenceOff();
   CHECK(fits);
   CHECK(sum.status == Status::ok);
   CHECK(rowfold_test::eigenAssertHits.load() == 0);

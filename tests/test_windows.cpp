@@ -471,10 +471,7 @@ TEST_CASE("BlockWindow: fixed K and B allocate nothing, ever; dynamic sizes only
     X.row(i) << g.next(), 1 + g.next(), 2 + g.next();
     y(i) = g.next();
   }
-  rowfold_test::eigenAssertHits = 0;
-  rowfold_test::newCalls = 0;
-  Eigen::internal::set_is_malloc_allowed(false);
-  rowfold_test::countNew = true;
+  rowfold_test::fenceOn();
   Status last = Status::ok;
   for (int t = 0; t < 57; ++t) {
     const Eigen::Vector3d x(g.next(), 1 + g.next(), 2 + g.next());
@@ -494,8 +491,7 @@ TEST_CASE("BlockWindow: fixed K and B allocate nothing, ever; dynamic sizes only
   const Status snap = fixed.snapshot(img.data(), img.size(), written);
   const Status back = fixedBack.restore(img.data(), written);
   fixed.reset();
-  rowfold_test::countNew = false;
-  Eigen::internal::set_is_malloc_allowed(true);
+  rowfold_test::fenceOff();
   CHECK(rowfold_test::eigenAssertHits.load() == 0);
   CHECK(rowfold_test::newCalls.load() == 0);
   CHECK(last == Status::ok);

@@ -35,3 +35,22 @@ struct StringMaker<rowfold::Status> {
 #else
 #define ROWFOLD_WITH_FLOAT(...)
 #endif
+
+// The allocation fence of support/alloc_fence.hpp (a file that includes it first, before Eigen),
+// switched around the calls under test: fenceOn() zeroes the counters, refuses Eigen heap
+// allocations and counts operator new; fenceOff() lifts both. The caller then checks
+// rowfold_test::eigenAssertHits and newCalls.
+#if defined(EIGEN_RUNTIME_NO_MALLOC)
+namespace rowfold_test {
+inline void fenceOn() {
+  eigenAssertHits = 0;
+  newCalls = 0;
+  Eigen::internal::set_is_malloc_allowed(false);
+  countNew = true;
+}
+inline void fenceOff() {
+  countNew = false;
+  Eigen::internal::set_is_malloc_allowed(true);
+}
+}  // namespace rowfold_test
+#endif
