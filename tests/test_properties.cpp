@@ -277,6 +277,53 @@ TEST_CASE("addRows in blocks equals folding row by row (to rounding), with forge
   SUBCASE("BatchQr (stores rows)") { blockCases<Batch>(24); }
 }
 
+// GivensQr's one-pass addRows in its wide (row-major) form, k = 30: a bad value in a late block,
+// found after 15 clean blocks were folded into the scratch factor, refuses the call with add()'s
+// Status and leaves the snapshot image as it was; with weights, a bad value in a zero-weight row
+// still refuses it. A NaN in the last column (y) and an Inf in a middle column are both found
+// (each reaches its column's reflector norm).
+TEST_CASE("GivensQr addRows, wide form: a bad row in a late block leaves the state untouched") {
+  using G = rowfold::GivensQr<double, Eigen::Dynamic>;
+  using rowfold::Status;
+  const Eigen::Index k = 30, n = 600, bad = 531;
+  std::mt19937_64 rng(31);
+  const Problem p = randomProblem(rng, n, k);
+  G est(k, G::Options());
+  REQUIRE(est.addRows(p.X.topRows(40), p.y.head(40)) == Status::ok);
+  std::vector<unsigned char> image(est.snapshotSize()), after(est.snapshotSize());
+  std::size_t written = 0;
+  REQUIRE(est.snapshot(image.data(), image.size(), written) == Status::ok);
+  const auto unchanged = [&]() {
+    std::size_t wr = 0;
+    REQUIRE(est.snapshot(after.data(), after.size(), wr) == Status::ok);
+    return after == image;
+  };
+  const double nan = std::numeric_limits<double>::quiet_NaN(), inf = std::numeric_limits<double>::infinity();
+  Mat X = p.X;
+  Vec y = p.y, w = Vec::Ones(n);
+  y(bad) = nan;
+  CHECK(est.addRows(X, y) == Status::nonfinite_input);
+  CHECK(unchanged());
+  y = p.y;
+  X(bad, 17) = -inf;
+  CHECK(est.addRows(X, y) == Status::nonfinite_input);
+  CHECK(unchanged());
+  w(bad) = 0;  // a zero-weight row is not folded, but it is still checked
+  CHECK(est.addRows(X, y, w) == Status::nonfinite_input);
+  CHECK(unchanged());
+  X = p.X;
+  w(bad + 7) = -1;
+  CHECK(est.addRows(X, y, w) == Status::negative_weight);
+  CHECK(unchanged());
+  // The clean call is taken, and gives the fit of all rows at once (to rounding).
+  REQUIRE(est.addRows(p.X.bottomRows(n - 40), p.y.tail(n - 40)) == Status::ok);
+  G once(k, G::Options());
+  REQUIRE(once.addRows(p.X, p.y) == Status::ok);
+  CHECK(est.count() == once.count());
+  const auto a = est.solve(), b = once.solve();
+  CHECK((a.coefficients - b.coefficients).cwiseAbs().maxCoeff() <= 1e-10 * b.coefficients.cwiseAbs().maxCoeff());
+}
+
 namespace {
 
 // GivensQr::addRows near the ends of the exponent range: scaling X and y by a power of 2 s

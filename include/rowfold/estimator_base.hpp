@@ -245,8 +245,9 @@ class EstimatorBase {
   /// Cost: O(n K) validation (one vectorized pass; row by row only to report a bad row) + n
   /// times the estimator's update; unguarded GivensQr and NormalEquations fold in blocks
   /// (merged with the pairwise centering update; equal to row-by-row folding up to rounding).
-  /// Unguarded NormalEquations reads the rows once: it validates each block in cache as it
-  /// folds it into a call accumulator, merged into the state at the end (`fusedRows`).
+  /// Unguarded NormalEquations and GivensQr read the rows once: they validate each block in
+  /// cache as they fold it into a call accumulator (GivensQr: its explicit factor, scratch),
+  /// taken into the state only at the end (`fusedRows`).
   /// Never allocates.
   template <typename XD, typename YD>
   Status addRows(const Eigen::MatrixBase<XD>& X, const Eigen::MatrixBase<YD>& y) {

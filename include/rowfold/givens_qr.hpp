@@ -49,7 +49,10 @@ struct GivensQrOptions : FitOptions {};
 /// folded by one Householder QR of the factor stacked on the block (the TSQR step, NUMERICS §5;
 /// detail/householder_block.hpp), ~ (K+1)^2 multiply-adds per row along contiguous columns, and
 /// the result is turned back at the end. Normwise backward stable like the rotations; the same
-/// fit to rounding (not bit for bit).
+/// fit to rounding (not bit for bit). Unguarded, the rows are read once: each block is checked
+/// while it is in cache, and a refused call (the first bad row's Status, as add() gives it)
+/// leaves the state and its snapshot image untouched; only scratch (the explicit factor, the
+/// block buffers) keeps traces of the blocks folded before the bad one.
 ///
 /// **Status and flags:** those of EstimatorBase (remove() adds `not_definite`); no capacity
 /// limit (`capacity_full` never occurs) and no flags of its own. With lambda = 1 in float32,
@@ -91,6 +94,7 @@ class GivensQr : public EstimatorBase<GivensQr<Scalar_, K_, MaxK_>, Scalar_, K_,
   static constexpr bool guardable = true;  ///< the windup guard and outlier gate apply
   static constexpr bool positionalAges = false;  ///< ages live in the state: addDelayed/advance are exact
   static constexpr bool deferredCentering = false;  ///< folds at once (see EstimatorBase::syncCentering)
+  static constexpr bool fusedRows = true;  ///< addRows validates and folds in one pass (ingestRows)
 
   /// Fixed K. status() reports invalid options; see EstimatorBase::status().
   explicit GivensQr(const Options& options = Options()) : GivensQr(K_ == Eigen::Dynamic ? 0 : K_, options) {}
@@ -103,7 +107,8 @@ class GivensQr : public EstimatorBase<GivensQr<Scalar_, K_, MaxK_>, Scalar_, K_,
         m_rld(k + 1),
         m_block(k),
         m_wide(k + 1 >= kWide ? detail::RowBlock<Scalar, K_, MaxK_>::rowsFor(k) + 1 : 0, k + 1 >= kWide ? k + 1 : 0),
-        m_factor(k + 1, k + 1) {
+        m_factor(k + 1, k + 1),
+        m_savedCentering(k) {
     m_state.setZero();
     m_x.setZero();
     m_rld.setZero();
@@ -251,45 +256,87 @@ class GivensQr : public EstimatorBase<GivensQr<Scalar_, K_, MaxK_>, Scalar_, K_,
     foldCentered(d, delta, this->lambda());
   }
 
-  /// Blocked addRows (rows already validated): per block the rows are centered on the block's
-  /// weighted means, the state is aged by lambda^b once, and the centered rows (weights
-  /// w lambda^age) and the mean difference (weight W_A W_B / W', the factored form of the
-  /// pairwise update of Chan, Golub & LeVeque 1983; NUMERICS §5 "Centered merge") are folded
-  /// together by one Householder QR of [sqrt(lambda^b) F; diag(sqrt(omega)) Z; sqrt(W_A W_B / W') diff']
-  /// with F = [R z; 0 rho] (detail::foldBlockHouseholder: the stacked-triangle step of TSQR).
-  /// The square-root-free state is turned into F once per call and back once at the end (one
-  /// rounding each, however many blocks). Equal to row-by-row folding in exact arithmetic.
+  /// Blocked addRows of validated rows (the guarded path's fallback; see foldBlocks).
   template <typename XD, typename YD, typename WD>
   void foldRows(const Eigen::MatrixBase<XD>& X, const Eigen::MatrixBase<YD>& y, const WD* w) {
-    Eigen::Index i = 0, nb = m_block.gather(X, y, w, i);
-    if (nb == 0) return;
-    formFactor();
-    const Eigen::Index n = m_state.rows();
-    for (; nb > 0; nb = m_block.gather(X, y, w, i)) {
-      const auto mg = m_block.prepare(nb, this->lambda(), this->interceptMode(), this->centeringState());
-      if (mg.ageing != Scalar(1)) m_factor.template triangularView<Eigen::Upper>() *= std::sqrt(mg.ageing);
-      auto& z = m_block.rows();
-      const Scalar extra = mg.weight > Scalar(0) ? std::sqrt(mg.weight) : Scalar(0);
-      auto root = m_block.tmp().head(nb);
-      if (!mg.unit) root = m_block.weights().head(nb).cwiseSqrt();
-      if constexpr (!kNoWide) {  // a compile-time bound below kWide never takes this branch
-        if (n >= kWide) {  // few rows per block: fold them row-major (see foldRowsHouseholder)
-          if (mg.unit)
-            m_wide.topRows(nb) = z.topRows(nb);
-          else
-            m_wide.topRows(nb) = root.asDiagonal() * z.topRows(nb);
-          m_wide.row(nb) = extra * m_block.diff().transpose();
-          detail::foldRowsHouseholder(m_factor, m_wide.data(), extra > Scalar(0) ? nb + 1 : nb, m_wide.cols(),
-                                      m_x.data());
-          continue;
+    foldBlocks<false>(X, y, w);
+  }
+
+  /// One-pass addRows (guards off): each block is checked while it is in cache and folded into
+  /// the explicit factor, which is scratch until the end; the state is taken from it only when
+  /// every row was clean, and the centering (saved first) is put back otherwise. Returns the
+  /// Status of the first row add() would reject (the state then untouched), else `ok`.
+  template <typename XD, typename YD, typename WD>
+  Status ingestRows(const Eigen::MatrixBase<XD>& X, const Eigen::MatrixBase<YD>& y, const WD* w) {
+    m_savedCentering = this->centeringState();  // same size: no allocation
+    const Status s = foldBlocks<true>(X, y, w);
+    if (s != Status::ok) this->centeringState() = m_savedCentering;
+    return s;
+  }
+
+  /// Blocked ingestion: per block, foldBlock, from one explicit factor F = [R z; 0 rho]: the
+  /// square-root-free state is turned into F once per call and back once at the end (one
+  /// rounding each, however many blocks). Equal to row-by-row folding in exact arithmetic. With
+  /// Check, each block is validated while it is in cache, after its fold: with unit weights by
+  /// the diagonal of F (a NaN or Inf anywhere in the block reaches the diagonal entry of its
+  /// column: that column's reflector norm), else by the raw rows (zero-weight ones included).
+  /// On a hit, the row-by-row check of the block gives the Status; rows that are finite but
+  /// whose squares overflow find no bad row and stay folded, as row by row.
+  template <bool Check, typename XD, typename YD, typename WD>
+  Status foldBlocks(const Eigen::MatrixBase<XD>& X, const Eigen::MatrixBase<YD>& y, const WD* w) {
+    bool formed = false;
+    for (Eigen::Index i = 0, i0 = 0; i < X.rows(); i0 = i) {
+      const Eigen::Index nb = m_block.gather(X, y, w, i);
+      if (w == nullptr) m_block.prefetch(X, y, i);  // the next block, while this one is folded
+      if (nb > 0) {
+        if (!formed) formFactor();
+        formed = true;
+        foldBlock(nb);
+      }
+      if constexpr (Check) {
+        if (w == nullptr ? !diagonalFinite() : !Base::cleanRows(X, y, w, i0, i)) {
+          const Status s = this->firstReject(X, y, w, i0, i);
+          if (s != Status::ok) return s;
         }
       }
-      if (!mg.unit)
-        for (Eigen::Index j = 0; j < n; ++j) z.col(j).head(nb).array() *= root.array();
-      if (extra > Scalar(0)) m_x.head(n) = extra * m_block.diff();
-      detail::foldBlockHouseholder(m_factor, z.data(), nb, z.rows(), extra > Scalar(0) ? m_x.data() : nullptr);
     }
-    takeFactor();
+    if (formed) takeFactor();
+    return Status::ok;
+  }
+
+  /// True if m_factor's diagonal is finite (x * 0 is 0 for finite x, NaN otherwise).
+  bool diagonalFinite() const { return (m_factor.diagonal().array() * Scalar(0)).sum() == Scalar(0); }
+
+  /// Folds the nb gathered rows into m_factor: the rows are centered on the block's weighted
+  /// means, F is aged by lambda^b once, and the centered rows (weights w lambda^age) and the mean
+  /// difference (weight W_A W_B / W', the factored form of the pairwise update of Chan, Golub &
+  /// LeVeque 1983; NUMERICS §5 "Centered merge") are folded together by one Householder QR of
+  /// [sqrt(lambda^b) F; diag(sqrt(omega)) Z; sqrt(W_A W_B / W') diff'] (the stacked-triangle
+  /// step of TSQR: detail::foldBlockHouseholder, or detail::foldRowsHouseholder for wide rows).
+  void foldBlock(Eigen::Index nb) {
+    const Eigen::Index n = m_state.rows();
+    const auto mg = m_block.prepare(nb, this->lambda(), this->interceptMode(), this->centeringState());
+    if (mg.ageing != Scalar(1)) m_factor.template triangularView<Eigen::Upper>() *= std::sqrt(mg.ageing);
+    auto& z = m_block.rows();
+    const Scalar extra = mg.weight > Scalar(0) ? std::sqrt(mg.weight) : Scalar(0);
+    auto root = m_block.tmp().head(nb);
+    if (!mg.unit) root = m_block.weights().head(nb).cwiseSqrt();
+    if constexpr (!kNoWide) {  // a compile-time bound below kWide never takes this branch
+      if (n >= kWide) {  // few rows per block: fold them row-major (see foldRowsHouseholder)
+        if (mg.unit)
+          m_wide.topRows(nb) = z.topRows(nb);
+        else
+          m_wide.topRows(nb) = root.asDiagonal() * z.topRows(nb);
+        m_wide.row(nb) = extra * m_block.diff().transpose();
+        detail::foldRowsHouseholder(m_factor, m_wide.data(), extra > Scalar(0) ? nb + 1 : nb, m_wide.cols(),
+                                    m_x.data(), m_rld.data());  // m_rld: free outside a row fold
+        return;
+      }
+    }
+    if (!mg.unit)
+      for (Eigen::Index j = 0; j < n; ++j) z.col(j).head(nb).array() *= root.array();
+    if (extra > Scalar(0)) m_x.head(n) = extra * m_block.diff();
+    detail::foldBlockHouseholder(m_factor, z.data(), nb, z.rows(), extra > Scalar(0) ? m_x.data() : nullptr);
   }
 
   /// Folds the centered row d with weight delta (Gentleman 1973; see the class comment).
@@ -573,6 +620,7 @@ class GivensQr : public EstimatorBase<GivensQr<Scalar_, K_, MaxK_>, Scalar_, K_,
   detail::RowBlock<Scalar, K_, MaxK_> m_block;  // addRows scratch
   WideRows m_wide;                                 // addRows scratch, row-major (K + 1 >= kWide only)
   mutable typename Dims::Matrix1 m_factor;  // explicit factor, formed on demand
+  Centering<Scalar, K_, MaxK_> m_savedCentering;   // addRows scratch: the centering to put back on a refused call
 };
 
 }  // namespace rowfold

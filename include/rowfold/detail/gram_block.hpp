@@ -155,49 +155,21 @@ class GramBlock {
   /// skipped: like in `add`, they do not age the state.
   template <typename XD, typename YD, typename WD>
   Eigen::Index gather(const Eigen::MatrixBase<XD>& X, const Eigen::MatrixBase<YD>& y, const WD* w, Eigen::Index& i) {
-    const Eigen::Index k = X.cols(), cap = m_z.rows() - kPad, rows = X.rows();
-    const auto ld = stride();
+    const Eigen::Index cap = m_z.rows() - kPad, rows = X.rows();
     Eigen::Index nb = 0;
     if (w == nullptr) {
       nb = rows - i < cap ? rows - i : cap;
-      // Row by row, in the source's order (a row-major X streams; the block's strided writes
-      // stay in L1). Reading down the columns instead waits on one cache miss per row.
-      Scalar* const z = m_z.data();
-      const Eigen::Index kk = K != Eigen::Dynamic ? Eigen::Index(K) : k;
-      for (Eigen::Index r = 0; r < nb; ++r) {
-        for (Eigen::Index j = 0; j < kk; ++j) z[j * ld + r] = X(i + r, j);
-        z[kk * ld + r] = Scalar(y(i + r));
-      }
+      copyRows<K>(X, y, i, nb, m_z.data(), stride());
       i += nb;
       return nb;
     }
     return gatherWeighted(X, y, *w, i, cap, m_z, m_omega);
   }
 
-  /// Asks for rows [i, i + block) of a row-major X and of y ahead of `gather` (cache-line
-  /// prefetches, GCC/Clang), so that the next block streams in while this one is folded; a
-  /// no-op for other layouts and compilers.
+  /// Prefetches the block that `gather` would copy from row `i` on (see prefetchRows).
   template <typename XD, typename YD>
   void prefetch(const Eigen::MatrixBase<XD>& X, const Eigen::MatrixBase<YD>& y, Eigen::Index i) const {
-#if defined(__GNUC__)
-    const Eigen::Index m = X.rows() - i < m_z.rows() - kPad ? X.rows() - i : m_z.rows() - kPad;
-    if (m <= 0) return;
-    constexpr Eigen::Index line = 64 / sizeof(Scalar);
-    if constexpr (bool(XD::Flags & Eigen::DirectAccessBit) && bool(XD::IsRowMajor)) {
-      const Scalar* p = X.derived().data() + i * X.derived().outerStride();
-      const Eigen::Index span = m * X.derived().outerStride();
-      for (Eigen::Index o = 0; o < span; o += line) __builtin_prefetch(p + o, 0, 3);
-    }
-    if constexpr (bool(YD::Flags & Eigen::DirectAccessBit) && std::is_same<typename YD::Scalar, Scalar>::value) {
-      const Scalar* q = y.derived().data() + i * y.derived().innerStride();
-      if (y.derived().innerStride() == 1)
-        for (Eigen::Index o = 0; o < m; o += line) __builtin_prefetch(q + o, 0, 3);
-    }
-#else
-    (void)X;
-    (void)y;
-    (void)i;
-#endif
+    prefetchRows<Scalar>(X, y, i, m_z.rows() - kPad);
   }
 
   /// After fold: false if the last block had a NaN or Inf (or squares that overflow): its

@@ -6,6 +6,7 @@
 
 #include <Eigen/Core>
 #include <cstdint>
+#include <type_traits>
 
 #include "rowfold/centering.hpp"
 #include "rowfold/detail/dims.hpp"
@@ -30,6 +31,65 @@ Eigen::Index gatherWeighted(const Eigen::MatrixBase<XD>& X, const Eigen::MatrixB
     ++nb;
   }
   return nb;
+}
+
+/// Copies rows [i, i + nb) of X and y into the columns of the column-major block z (column
+/// stride ld; k = X.cols() regressors, then y). Row by row, in the source's order: a row-major
+/// X streams and the block's strided writes stay in L1 (reading down the columns instead waits
+/// on one cache miss per row).
+template <int K, typename XD, typename YD, typename Scalar, typename Ld>
+void copyRows(const Eigen::MatrixBase<XD>& X, const Eigen::MatrixBase<YD>& y, Eigen::Index i, Eigen::Index nb,
+              Scalar* z, Ld ld) {
+  const Eigen::Index kk = K != Eigen::Dynamic ? Eigen::Index(K) : X.cols();
+  for (Eigen::Index r = 0; r < nb; ++r) {
+    for (Eigen::Index j = 0; j < kk; ++j) z[j * ld + r] = X(i + r, j);
+    z[kk * ld + r] = Scalar(y(i + r));
+  }
+}
+
+/// Asks for rows [i, i + m) of a row-major X and of y ahead of their copy (cache-line
+/// prefetches, GCC/Clang), so that the next block streams in while this one is folded; a no-op
+/// for other layouts and compilers.
+template <typename Scalar, typename XD, typename YD>
+void prefetchRows(const Eigen::MatrixBase<XD>& X, const Eigen::MatrixBase<YD>& y, Eigen::Index i, Eigen::Index m) {
+#if defined(__GNUC__)
+  if (m > X.rows() - i) m = X.rows() - i;
+  if (m <= 0) return;
+  constexpr Eigen::Index line = 64 / sizeof(Scalar);
+  if constexpr (bool(XD::Flags & Eigen::DirectAccessBit) && bool(XD::IsRowMajor)) {
+    const Scalar* p = X.derived().data() + i * X.derived().outerStride();
+    const Eigen::Index span = m * X.derived().outerStride();
+    for (Eigen::Index o = 0; o < span; o += line) __builtin_prefetch(p + o, 0, 3);
+  }
+  if constexpr (bool(YD::Flags & Eigen::DirectAccessBit) && std::is_same<typename YD::Scalar, Scalar>::value) {
+    const Scalar* q = y.derived().data() + i * y.derived().innerStride();
+    if (y.derived().innerStride() == 1)
+      for (Eigen::Index o = 0; o < m; o += line) __builtin_prefetch(q + o, 0, 3);
+  }
+#else
+  (void)X;
+  (void)y;
+  (void)i;
+  (void)m;
+#endif
+}
+
+/// sum_r a_r b_r over r < m (b == nullptr: sum_r a_r) in four interleaved partial sums:
+/// independent adders instead of one chain that waits on the adder's latency at every step.
+template <typename Scalar>
+Scalar blockDot(const Scalar* __restrict a, const Scalar* __restrict b, Eigen::Index m) {
+  Scalar s[4] = {Scalar(0), Scalar(0), Scalar(0), Scalar(0)};
+  Eigen::Index r = 0;
+  if (b == nullptr) {
+    for (; r + 4 <= m; r += 4)
+      for (int l = 0; l < 4; ++l) s[l] += a[r + l];
+    for (; r < m; ++r) s[0] += a[r];
+  } else {
+    for (; r + 4 <= m; r += 4)
+      for (int l = 0; l < 4; ++l) s[l] += a[r + l] * b[r + l];
+    for (; r < m; ++r) s[0] += a[r] * b[r];
+  }
+  return (s[0] + s[1]) + (s[2] + s[3]);
 }
 
 /// Scratch for one block of rows [x y] (column-major, so each column of the block is
@@ -74,21 +134,22 @@ class RowBlock {
   /// `add`, they do not age the state.
   template <typename XD, typename YD, typename WD>
   Eigen::Index gather(const Eigen::MatrixBase<XD>& X, const Eigen::MatrixBase<YD>& y, const WD* w, Eigen::Index& i) {
-    const Eigen::Index k = X.cols(), cap = m_z.rows(), rows = X.rows();
+    const Eigen::Index cap = m_z.rows(), rows = X.rows();
     Eigen::Index nb = 0;
     if (w == nullptr) {
       nb = rows - i < cap ? rows - i : cap;
-      if constexpr (K != Eigen::Dynamic) {
-        m_z.topRows(nb).template leftCols<K>() = X.middleRows(i, nb);  // fixed row length: inline copies
-      } else {
-        m_z.topLeftCorner(nb, k) = X.middleRows(i, nb);
-      }
-      m_z.col(k).head(nb) = y.segment(i, nb).template cast<Scalar>();
+      copyRows<K>(X, y, i, nb, m_z.data(), m_z.rows());
       m_omega.head(nb).setOnes();
       i += nb;
       return nb;
     }
     return gatherWeighted(X, y, *w, i, cap, m_z, m_omega);
+  }
+
+  /// Prefetches the block that `gather` would copy from row `i` on (see prefetchRows).
+  template <typename XD, typename YD>
+  void prefetch(const Eigen::MatrixBase<XD>& X, const Eigen::MatrixBase<YD>& y, Eigen::Index i) const {
+    prefetchRows<Scalar>(X, y, i, m_z.rows());
   }
 
   /// Weights the nb gathered rows by lambda^age (age nb-1-r for row r at the end of the block),
@@ -110,17 +171,18 @@ class RowBlock {
         p *= lambda;
       }
     }
-    const auto om = m_omega.head(nb);
-    const Scalar wB = om.sum();
+    const Scalar* const om = unit ? nullptr : m_omega.data();  // nullptr: unit weights
+    const Scalar wB = unit ? Scalar(nb) : blockDot(m_omega.data(), static_cast<const Scalar*>(nullptr), nb);
     if (mode == Intercept::fit) {
       for (Eigen::Index j = 0; j < n; ++j) {
-        m_mean(j) = om.dot(m_z.col(j).head(nb)) / wB;
+        m_mean(j) = blockDot(m_z.col(j).data(), om, nb) / wB;
         m_z.col(j).head(nb).array() -= m_mean(j);
       }
     } else {
       m_mean.setZero();
     }
-    const Scalar syyB = om.dot(m_z.col(n - 1).head(nb).cwiseAbs2());
+    const auto yc = m_z.col(n - 1).head(nb);
+    const Scalar syyB = unit ? blockDot(yc.data(), yc.data(), nb) : m_omega.head(nb).dot(yc.cwiseAbs2());
     const Scalar c =
         centering.mergeBlock(p, p * p, wB, m_mean, syyB, f, f2, static_cast<std::uint64_t>(nb), mode, m_diff);
     return Merge{p, c, unit};
