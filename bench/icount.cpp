@@ -7,6 +7,8 @@
 // Usage: rowfold_icount <what> <K> <float|double> <guard 0|1> <samples>
 //   what: forgetting | normal | givens | plainrls | rank1 | plaingivens; K: 2, 4, 8, 16 or 32
 //   (fixed), or dyn2, dyn4, dyn8, dyn16, dyn32 (Eigen::Dynamic; rowfold estimators only).
+//   what: givensrows | normalrows (one unguarded addRows call of all the samples, the ring tiled
+//   into a row-major X; the count includes filling X, K copies per row); K: 8, 16 or 64.
 #include <cstdio>
 #include <cstdlib>
 #include <cstring>
@@ -54,6 +56,30 @@ double foldEstimator(int k, double lambda, bool guard, long n) {
   return static_cast<double>(est.solve().coefficients(0));
 }
 
+// One addRows call of n rows (the ring tiled), lambda 1, guards off.
+template <typename E, typename S, int K>
+double foldRows(int k, long n) {
+  E est(k, typename E::Options());
+  const Ring<S> r(k);
+  Eigen::Matrix<S, Eigen::Dynamic, K, Eigen::RowMajor> X(n, k);
+  Eigen::Matrix<S, Eigen::Dynamic, 1> y(n);
+  for (long t = 0; t < n; ++t) {
+    const auto i = static_cast<std::size_t>(t % kRing);
+    X.row(t) = Eigen::Map<const Eigen::Matrix<S, 1, K>>(&r.x[i * static_cast<std::size_t>(k)], k);
+    y(t) = r.y[i];
+  }
+  if (est.addRows(X, y) != rowfold::Status::ok) return -1.0;
+  return static_cast<double>(est.solve().coefficients(0));
+}
+
+template <typename S, int K>
+bool dispatchRows(const std::string& what, int k, long n, double& out) {
+  if (what == "givensrows") out = foldRows<rowfold::GivensQr<S, K>, S, K>(k, n);
+  else if (what == "normalrows") out = foldRows<rowfold::NormalEquations<S, K>, S, K>(k, n);
+  else return false;
+  return true;
+}
+
 // The baselines expose no result, so each fold is kept observable as Google Benchmark's
 // ClobberMemory does (without it g++ dropped whole baseline loops).
 template <typename B, typename S>
@@ -85,6 +111,14 @@ bool dispatch(const std::string& what, int k, bool guard, long n, double& out) {
 
 template <typename S>
 bool byK(const std::string& what, const std::string& ks, bool guard, long n, double& out) {
+  if (what.size() > 4 && what.compare(what.size() - 4, 4, "rows") == 0) {
+    switch (std::atoi(ks.c_str())) {
+      case 8: return dispatchRows<S, 8>(what, 8, n, out);
+      case 16: return dispatchRows<S, 16>(what, 16, n, out);
+      case 64: return dispatchRows<S, 64>(what, 64, n, out);
+      default: return false;
+    }
+  }
   const bool dyn = ks.rfind("dyn", 0) == 0;
   const int k = std::atoi(ks.c_str() + (dyn ? 3 : 0));
   if (dyn) return k > 0 && dispatch<S, Eigen::Dynamic>(what, k, guard, n, out);

@@ -1,5 +1,6 @@
 #!/usr/bin/env bash
-# Instructions per sample of the per-sample update (bench/icount.cpp under valgrind's cachegrind):
+# Instructions per sample of the per-sample update, or per row of one addRows call (what =
+# givensrows | normalrows), from bench/icount.cpp under valgrind's cachegrind:
 # a load-independent complement to the Google Benchmark timings, for comparing two versions of a
 # hot path on a shared machine. Portable -O3 build. Each figure is
 # (I refs at 60000 samples - I refs at 20000 samples) / 40000, so start-up and the exact start
