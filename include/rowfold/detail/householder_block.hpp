@@ -162,10 +162,10 @@ void foldBlockHouseholder(FM& F, Scalar* B, Eigen::Index m, Eigen::Index ld, Sca
 
 /// Row-major form of foldBlockHouseholder for wide factors (many columns, few rows per block):
 /// B holds all m rows to fold (row-major, leading dimension ld; no extra row), w and f are
-/// scratch of n entries each. The same reflectors; the inner loops run along the contiguous rows of B (the
-/// trailing columns) in SIMD packets, four rows at a time, with no reductions; row j of F is
-/// worked on in a contiguous copy, and the next column's sum of squares is taken in the update
-/// pass. Cost about 2 m n^2 flops.
+/// scratch of n entries each. The same reflectors; the inner loops run along the contiguous
+/// rows of B (the trailing columns) in SIMD packets, four rows at a time, with no reductions;
+/// row j of F is worked on in a contiguous copy, and the next column's sum of squares is taken
+/// in the update pass. Cost about 2 m n^2 flops.
 template <typename Scalar, typename FM>
 void foldRowsHouseholder(FM& F, Scalar* B, Eigen::Index m, Eigen::Index ld, Scalar* w, Scalar* f) {
   using namespace Eigen::internal;
