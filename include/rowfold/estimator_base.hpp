@@ -859,12 +859,6 @@ class EstimatorBase {
     return Status::ok;
   }
 
-  template <typename MD>
-  static bool allFiniteFast(const Eigen::MatrixBase<MD>& m) {
-    using S = typename MD::Scalar;
-    return m.size() == 0 || (m.derived().array() * S(0)).sum() == S(0);
-  }
-
   /// Folds (x, y, w) with step factor lam; m_row keeps the unscaled centered row d. Returns
   /// its weight delta (the co-moments gained delta d d').
   template <typename XD>
@@ -1093,6 +1087,14 @@ class EstimatorBase {
       const Scalar wi = w != nullptr ? Scalar((*w)(i)) : Scalar(1);
       if (wi != Scalar(0)) fold(X.row(i).transpose(), Scalar(y(i)), wi, m_lambda);
     }
+  }
+
+  /// True if every entry of m is finite: one vectorized pass without early exit (x * 0 is 0 for
+  /// finite x, NaN for NaN or Inf; Eigen's allFinite tests entry by entry).
+  template <typename MD>
+  static bool allFiniteFast(const Eigen::MatrixBase<MD>& m) {
+    using S = typename MD::Scalar;
+    return m.size() == 0 || (m.derived().array() * S(0)).sum() == S(0);
   }
 
   /// True if rows [from, to) of X, y (and w) are finite and no weight is negative: one

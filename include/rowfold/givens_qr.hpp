@@ -256,12 +256,6 @@ class GivensQr : public EstimatorBase<GivensQr<Scalar_, K_, MaxK_>, Scalar_, K_,
     foldCentered(d, delta, this->lambda());
   }
 
-  /// Blocked addRows of validated rows (the guarded path's fallback; see foldBlocks).
-  template <typename XD, typename YD, typename WD>
-  void foldRows(const Eigen::MatrixBase<XD>& X, const Eigen::MatrixBase<YD>& y, const WD* w) {
-    foldBlocks<false>(X, y, w);
-  }
-
   /// One-pass addRows (guards off): each block is checked while it is in cache and folded into
   /// the explicit factor, which is scratch until the end; the state is taken from it only when
   /// every row was clean, and the centering (saved first) is put back otherwise. Returns the
@@ -269,20 +263,20 @@ class GivensQr : public EstimatorBase<GivensQr<Scalar_, K_, MaxK_>, Scalar_, K_,
   template <typename XD, typename YD, typename WD>
   Status ingestRows(const Eigen::MatrixBase<XD>& X, const Eigen::MatrixBase<YD>& y, const WD* w) {
     m_savedCentering = this->centeringState();  // same size: no allocation
-    const Status s = foldBlocks<true>(X, y, w);
+    const Status s = foldBlocks(X, y, w);
     if (s != Status::ok) this->centeringState() = m_savedCentering;
     return s;
   }
 
   /// Blocked ingestion: per block, foldBlock, from one explicit factor F = [R z; 0 rho]: the
   /// square-root-free state is turned into F once per call and back once at the end (one
-  /// rounding each, however many blocks). Equal to row-by-row folding in exact arithmetic. With
-  /// Check, each block is validated while it is in cache, after its fold: with unit weights by
+  /// rounding each, however many blocks). Equal to row-by-row folding in exact arithmetic. Each
+  /// block is validated while it is in cache, after its fold: with unit weights by
   /// the diagonal of F (a NaN or Inf anywhere in the block reaches the diagonal entry of its
   /// column: that column's reflector norm), else by the raw rows (zero-weight ones included).
   /// On a hit, the row-by-row check of the block gives the Status; rows that are finite but
   /// whose squares overflow find no bad row and stay folded, as row by row.
-  template <bool Check, typename XD, typename YD, typename WD>
+  template <typename XD, typename YD, typename WD>
   Status foldBlocks(const Eigen::MatrixBase<XD>& X, const Eigen::MatrixBase<YD>& y, const WD* w) {
     bool formed = false;
     for (Eigen::Index i = 0, i0 = 0; i < X.rows(); i0 = i) {
@@ -293,19 +287,14 @@ class GivensQr : public EstimatorBase<GivensQr<Scalar_, K_, MaxK_>, Scalar_, K_,
         formed = true;
         foldBlock(nb);
       }
-      if constexpr (Check) {
-        if (w == nullptr ? !diagonalFinite() : !Base::cleanRows(X, y, w, i0, i)) {
-          const Status s = this->firstReject(X, y, w, i0, i);
-          if (s != Status::ok) return s;
-        }
+      if (w == nullptr ? !Base::allFiniteFast(m_factor.diagonal()) : !Base::cleanRows(X, y, w, i0, i)) {
+        const Status s = this->firstReject(X, y, w, i0, i);
+        if (s != Status::ok) return s;
       }
     }
     if (formed) takeFactor();
     return Status::ok;
   }
-
-  /// True if m_factor's diagonal is finite (x * 0 is 0 for finite x, NaN otherwise).
-  bool diagonalFinite() const { return (m_factor.diagonal().array() * Scalar(0)).sum() == Scalar(0); }
 
   /// Folds the nb gathered rows into m_factor: the rows are centered on the block's weighted
   /// means, F is aged by lambda^b once, and the centered rows (weights w lambda^age) and the mean
