@@ -227,14 +227,17 @@ std::string flagText(rowfold::Flags f) {
 
 template <typename Est>
 void crossCheck(const std::string& estName, Kind kind, Est& est, const Problem& pb, const Reference& ref,
-                const DataFacts& f) {
+                const DataFacts& f, bool oneCall = false) {
   const Eigen::Index n = rows(pb), k = pb.X.cols(), p = k + 1;
   const double sn = std::sqrt(static_cast<double>(n));
   const double C = dimensionConstant(n, p);
   const std::string where = pb.name + " | " + estName;
 
   bool folded = true;
-  for (Eigen::Index i = 0; i < n; ++i) folded = folded && est.add(pb.X.row(i).transpose(), pb.y(i)) == Status::ok;
+  if (oneCall)  // blocked ingestion (GivensQr: Householder folds of row blocks; wide K row-major)
+    folded = est.addRows(pb.X, pb.y) == Status::ok;
+  else
+    for (Eigen::Index i = 0; i < n; ++i) folded = folded && est.add(pb.X.row(i).transpose(), pb.y(i)) == Status::ok;
   REQUIRE_MESSAGE(folded, where);
   const auto sol = est.solve();
   const auto sum = est.summarize(0.95);
@@ -346,6 +349,10 @@ void runAll(const Problem& pb) {
     crossCheck("GivensQr", Kind::online_qr, est, pb, ref, f);
   }
   {
+    rowfold::GivensQr<double, Eigen::Dynamic> est(k, rowfold::GivensQr<double, Eigen::Dynamic>::Options{});
+    crossCheck("GivensQr, one addRows call", Kind::online_qr, est, pb, ref, f, true);
+  }
+  {
     using Est = rowfold::NormalEquations<double, Eigen::Dynamic>;
     Est est(k, Est::Options{});
     crossCheck("NormalEquations", Kind::gram, est, pb, ref, f);
@@ -360,6 +367,9 @@ void runAll(const Problem& pb) {
 
 TEST_CASE("LAPACK DGELS cross-check: well-conditioned, K = 4") { runAll(wellConditioned(4, 0x5eed0001u)); }
 TEST_CASE("LAPACK DGELS cross-check: well-conditioned, K = 8") { runAll(wellConditioned(8, 0x5eed0002u)); }
+// K = 41: GivensQr's addRows folds 42 columns row-major in panels of four (the last panel has
+// two columns), 64 rows per block (200 rows: three whole blocks and a short one).
+TEST_CASE("LAPACK DGELS cross-check: well-conditioned, K = 41") { runAll(wellConditioned(41, 0x5eed0006u)); }
 TEST_CASE("LAPACK DGELS cross-check: collinear, scaled condition ~1e5") { runAll(collinear(1e-5, 0.5, 0x5eed0003u)); }
 TEST_CASE("LAPACK DGELS cross-check: collinear, scaled condition ~1e7") { runAll(collinear(1e-7, 1e-9, 0x5eed0004u)); }
 TEST_CASE("LAPACK DGELS cross-check: large offset") { runAll(largeOffset(0x5eed0005u)); }

@@ -106,13 +106,16 @@ class GivensQr : public EstimatorBase<GivensQr<Scalar_, K_, MaxK_>, Scalar_, K_,
         m_x(stride(k + 1)),
         m_rld(k + 1),
         m_block(k),
-        m_wide(k + 1 >= kWide ? detail::RowBlock<Scalar, K_, MaxK_>::rowsFor(k) + 1 : 0, k + 1 >= kWide ? k + 1 : 0),
+        m_wide(k + 1 >= kWide ? detail::RowBlock<Scalar, K_, MaxK_>::rowsFor(k) + 1 + kPanelRows : 0,
+               k + 1 >= kWide ? stride(k + 1) : 0),
         m_factor(k + 1, k + 1),
         m_savedCentering(k) {
     m_state.setZero();
     m_x.setZero();
     m_rld.setZero();
-    if constexpr (!kNoWide) m_wide.setZero();  // empty otherwise (g++ 12 misreads its bound)
+    // The pad columns of m_wide stay zero, as foldRowsHouseholder needs; m_wide is empty
+    // otherwise (g++ 12 misreads its bound).
+    if constexpr (!kNoWide) m_wide.setZero();
     m_factor.setZero();
   }
 
@@ -311,14 +314,14 @@ class GivensQr : public EstimatorBase<GivensQr<Scalar_, K_, MaxK_>, Scalar_, K_,
     auto root = m_block.tmp().head(nb);
     if (!mg.unit) root = m_block.weights().head(nb).cwiseSqrt();
     if constexpr (!kNoWide) {  // a compile-time bound below kWide never takes this branch
-      if (n >= kWide) {  // few rows per block: fold them row-major (see foldRowsHouseholder)
+      if (n >= kWide) {  // wide rows: fold them row-major, in panels (see foldRowsHouseholder)
         if (mg.unit)
-          m_wide.topRows(nb) = z.topRows(nb);
+          m_wide.topLeftCorner(nb, n) = z.topRows(nb);
         else
-          m_wide.topRows(nb) = root.asDiagonal() * z.topRows(nb);
-        m_wide.row(nb) = extra * m_block.diff().transpose();
+          m_wide.topLeftCorner(nb, n) = root.asDiagonal() * z.topRows(nb);
+        m_wide.row(nb).head(n) = extra * m_block.diff().transpose();
         detail::foldRowsHouseholder(m_factor, m_wide.data(), extra > Scalar(0) ? nb + 1 : nb, m_wide.cols(),
-                                    m_x.data(), m_rld.data());  // m_rld: free outside a row fold
+                                    m_wide.bottomRows(kPanelRows).data());  // its panel scratch
         return;
       }
     }
@@ -478,15 +481,18 @@ class GivensQr : public EstimatorBase<GivensQr<Scalar_, K_, MaxK_>, Scalar_, K_,
   }
 
   static constexpr Eigen::Index kRowBlock = 4;
-  // addRows: from this many columns (K + 1) on, a block (then at most 1024 / kWide rows) is
-  // folded row-major (measured: the column-major inner products are too short there).
+  // addRows: from this many columns (K + 1) on, a block is folded row-major in panels
+  // (foldRowsHouseholder). Measured with 64-row blocks, double, against the column-major form:
+  // 1.8x faster at K = 64 with AVX-512, a tie at K = 23..32; without FMA (SSE2) a tie at K = 64
+  // and 0.75x at K = 32 (bench/README.md, "Blocked wide fold round").
   static constexpr int kWide = 24;
   static constexpr bool kNoWide = Dims::MaxK1 != Eigen::Dynamic && Dims::MaxK1 < kWide;
+  static constexpr int kPanelRows = 2 * int(detail::kPanel);  // foldRowsHouseholder's scratch
   static constexpr int kWideRows = detail::RowBlock<Scalar, K_, MaxK_>::kFixedRows == Eigen::Dynamic
                                        ? Eigen::Dynamic
-                                       : detail::RowBlock<Scalar, K_, MaxK_>::kFixedRows + 1;
+                                       : detail::RowBlock<Scalar, K_, MaxK_>::kFixedRows + 1 + kPanelRows;
   using WideRows = Eigen::Matrix<Scalar, Eigen::Dynamic, Eigen::Dynamic, Eigen::RowMajor, kNoWide ? 2 : kWideRows,
-                                 kNoWide ? 2 : Dims::MaxK1>;
+                                 kNoWide ? 2 : padded(Dims::MaxK1)>;
   // Range of delta b^2 that needs no rescaling: u^-2 .. u^2 away from the limits.
   static constexpr Scalar kHigh = std::numeric_limits<Scalar>::max() * std::numeric_limits<Scalar>::epsilon() *
                                   std::numeric_limits<Scalar>::epsilon();
@@ -607,7 +613,8 @@ class GivensQr : public EstimatorBase<GivensQr<Scalar_, K_, MaxK_>, Scalar_, K_,
   Vector1 m_rld;               // 1/(lambda d_i) during a fold
   Scalar m_scale = Scalar(1);  // power of 4: the stored d are d * m_scale
   detail::RowBlock<Scalar, K_, MaxK_> m_block;  // addRows scratch
-  WideRows m_wide;                                 // addRows scratch, row-major (K + 1 >= kWide only)
+  WideRows m_wide;  // addRows scratch (K + 1 >= kWide only): the rows of a block, row-major, padded
+                    // like the state's rows, then kPanelRows rows of panel scratch
   mutable typename Dims::Matrix1 m_factor;  // explicit factor, formed on demand
   Centering<Scalar, K_, MaxK_> m_savedCentering;   // addRows scratch: the centering to put back on a refused call
 };

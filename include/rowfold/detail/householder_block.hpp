@@ -160,100 +160,176 @@ void foldBlockHouseholder(FM& F, Scalar* B, Eigen::Index m, Eigen::Index ld, Sca
   }
 }
 
-/// Row-major form of foldBlockHouseholder for wide factors (many columns, few rows per block):
-/// B holds all m rows to fold (row-major, leading dimension ld; no extra row), w and f are
-/// scratch of n entries each. The same reflectors; the inner loops run along the contiguous
-/// rows of B (the trailing columns) in SIMD packets, four rows at a time, with no reductions;
-/// row j of F is worked on in a contiguous copy, and the next column's sum of squares is taken
-/// in the update pass. Cost about 2 m n^2 flops.
+/// Reflectors per panel of foldRowsHouseholder: each pass over the trailing part of the block
+/// applies this many at once.
+inline constexpr Eigen::Index kPanel = 4;
+
+/// Packets of columns per step of the panel kernels: kPanel x T accumulators stay in registers.
+template <typename Scalar>
+constexpr int panelTile() {
+  return Eigen::internal::packet_traits<Scalar>::size == 1 ? 1 : (EIGEN_ARCH_DEFAULT_NUMBER_OF_REGISTERS >= 32 ? 3 : 2);
+}
+
+/// True where a packet with one value in every lane is best loaded from a copy made once:
+/// x86 below AVX, whose broadcast from memory takes two instructions.
+#if defined(EIGEN_VECTORIZE_SSE) && !defined(EIGEN_VECTORIZE_AVX)
+inline constexpr bool kPreBroadcast = true;
+#else
+inline constexpr bool kPreBroadcast = false;
+#endif
+
+/// Entry i of x in every lane: from x[i], or from the broadcast copy at x + i W (kPreBroadcast).
+template <typename Packet, typename Scalar>
+Packet panelValue(const Scalar* x, Eigen::Index i) {
+  using namespace Eigen::internal;
+  if constexpr (kPreBroadcast)
+    return pload<Packet>(x + i * unpacket_traits<Packet>::size);
+  else
+    return pset1<Packet>(x[i]);
+}
+
+/// D_q(c .. c + T W - 1) = sum_r x_q(r) B(r, c ..) for the kPanel columns x_q = x + q mx (m
+/// entries each) and T packets of columns of B (row-major, leading dimension ld); into the rows
+/// of d (stride ld).
+template <int T, typename Scalar>
+void panelDots(const Scalar* __restrict B, Eigen::Index ld, Eigen::Index m, const Scalar* __restrict x,
+               Eigen::Index mx, Eigen::Index c, Scalar* __restrict d) {
+  using namespace Eigen::internal;
+  using Packet = typename packet_traits<Scalar>::type;
+  constexpr Eigen::Index W = packet_traits<Scalar>::size, P = kPanel;
+  Packet acc[P][T];
+  for (Eigen::Index q = 0; q < P; ++q)
+    for (int t = 0; t < T; ++t) acc[q][t] = pset1<Packet>(Scalar(0));
+  for (Eigen::Index r = 0; r < m; ++r) {
+    Packet xq[P];
+    for (Eigen::Index q = 0; q < P; ++q) xq[q] = panelValue<Packet>(x, q * mx + r);
+    for (int t = 0; t < T; ++t) {
+      const Packet b = ploadu<Packet>(B + r * ld + c + t * W);
+      for (Eigen::Index q = 0; q < P; ++q) acc[q][t] = pmadd(xq[q], b, acc[q][t]);
+    }
+  }
+  for (Eigen::Index q = 0; q < P; ++q)
+    for (int t = 0; t < T; ++t) pstoreu(d + q * ld + c + t * W, acc[q][t]);
+}
+
+/// B(r, c .. c + T W - 1) -= sum_q x_q(r) w_q(c ..) for T packets of columns (x_q as in
+/// panelDots, w_q the rows of w, stride ld).
+template <int T, typename Scalar>
+void panelUpdates(Scalar* __restrict B, Eigen::Index ld, Eigen::Index m, const Scalar* __restrict x,
+                  Eigen::Index mx, Eigen::Index c, const Scalar* __restrict w) {
+  using namespace Eigen::internal;
+  using Packet = typename packet_traits<Scalar>::type;
+  constexpr Eigen::Index W = packet_traits<Scalar>::size, P = kPanel;
+  Packet nw[P][T];
+  for (Eigen::Index q = 0; q < P; ++q)
+    for (int t = 0; t < T; ++t) nw[q][t] = pnegate(ploadu<Packet>(w + q * ld + c + t * W));
+  for (Eigen::Index r = 0; r < m; ++r) {
+    Packet xq[P];
+    for (Eigen::Index q = 0; q < P; ++q) xq[q] = panelValue<Packet>(x, q * mx + r);
+    for (int t = 0; t < T; ++t) {
+      Scalar* br = B + r * ld + c + t * W;
+      Packet b = ploadu<Packet>(br);
+      for (Eigen::Index q = 0; q < P; ++q) b = pmadd(xq[q], nw[q][t], b);
+      pstoreu(br, b);
+    }
+  }
+}
+
+/// Row-major, blocked form of foldBlockHouseholder for wide factors (many columns, few rows per
+/// block). B holds the m <= 72 rows to fold (row-major, leading dimension ld, no extra row); ld
+/// is a multiple of the SIMD packet size, and the pad columns n .. ld-1 of B are zero. S is
+/// scratch of 2 kPanel ld entries. The same reflectors as foldBlockHouseholder, in panels of
+/// kPanel columns (the compact WY idea of Schreiber & Van Loan 1989, "A storage-efficient WY
+/// representation for products of Householder transformations", SIAM J. Sci. Stat. Comput.
+/// 10(1); for a triangle on a block as in LAPACK's xTPQRT):
+/// - the panel's columns are copied out (contiguous), and its reflectors are found and applied
+///   within the panel column by column;
+/// - one pass over the block gives the inner products D = X' B of the panel's reflector parts
+///   below F (X, m x kPanel) with the trailing columns; since reflector q changes only row
+///   j0 + q of F,
+///     w_q = tau_q (v0_q F(j0 + q, :) + D_q - sum_{s<q} (x_q' x_s) w_s),  F(j0 + q, :) -= v0_q w_q;
+/// - a second pass applies B -= X W.
+/// Each element of the block is loaded and stored once per panel instead of once per reflector.
+/// The trailing passes run in whole packets, from the packet boundary at or below the first
+/// trailing column (w is zeroed on the columns before it, so the stale panel columns of B stay
+/// as they are) to ld. Cost about 2 m n^2 flops; never allocates.
 template <typename Scalar, typename FM>
-void foldRowsHouseholder(FM& F, Scalar* B, Eigen::Index m, Eigen::Index ld, Scalar* w, Scalar* f) {
+void foldRowsHouseholder(FM& F, Scalar* __restrict B, Eigen::Index m, Eigen::Index ld, Scalar* __restrict S) {
   using namespace Eigen::internal;
   using Index = Eigen::Index;
   using Packet = typename packet_traits<Scalar>::type;
-  constexpr Index W = packet_traits<Scalar>::size;
+  constexpr Index W = packet_traits<Scalar>::size, P = kPanel, M = 72;
+  static_assert(P == 4, "the Gram products below are written out for four columns");
+  constexpr int T = panelTile<Scalar>();
   const Index n = F.cols();
-  Scalar* __restrict wc = w;      // w_c = tau v'[F; B](:, c)
-  Scalar* __restrict fj = f;      // row j of F
-  Scalar sigma = Scalar(0);       // sum of squares of column j of B
-  for (Index r = 0; r < m; ++r) sigma += B[r * ld] * B[r * ld];
-  for (Index j = 0; j < n; ++j) {
-    const Index c0 = j + 1;
-    if (sigma == Scalar(0)) {  // nothing below the diagonal: identity
-      sigma = Scalar(0);
-      for (Index r = 0; c0 < n && r < m; ++r) sigma += B[r * ld + c0] * B[r * ld + c0];
-      continue;
-    }
-    Scalar v0, tau, none = Scalar(0);
-    F(j, j) = makeReflector(F(j, j), sigma, B + j, m, ld, none, v0, tau);
-    if (c0 == n) break;
-    const Index cv = c0 + (n - c0) / W * W;  // end of the whole packets
-    for (Index c = c0; c < n; ++c) {
-      wc[c] = Scalar(0);
-      fj[c] = F(j, c);
-    }
-    // wc = B(:, c0:)' x, four rows per pass.
-    Index r = 0;
-    for (; r + 4 <= m; r += 4) {
-      const Scalar* b0 = B + r * ld;
-      const Scalar *b1 = b0 + ld, *b2 = b1 + ld, *b3 = b2 + ld;
-      const Scalar x0 = b0[j], x1 = b1[j], x2 = b2[j], x3 = b3[j];
-      const Packet p0 = pset1<Packet>(x0), p1 = pset1<Packet>(x1), p2 = pset1<Packet>(x2), p3 = pset1<Packet>(x3);
-      for (Index c = c0; c < cv; c += W) {
-        const Packet s01 = padd(pmul(p0, ploadu<Packet>(b0 + c)), pmul(p1, ploadu<Packet>(b1 + c)));
-        const Packet s23 = padd(pmul(p2, ploadu<Packet>(b2 + c)), pmul(p3, ploadu<Packet>(b3 + c)));
-        pstoreu(wc + c, padd(ploadu<Packet>(wc + c), padd(s01, s23)));
-      }
-      for (Index c = cv; c < n; ++c) wc[c] += (x0 * b0[c] + x1 * b1[c]) + (x2 * b2[c] + x3 * b3[c]);
-    }
-    for (; r < m; ++r) {
-      const Scalar* b0 = B + r * ld;
-      const Scalar x0 = b0[j];
-      for (Index c = c0; c < n; ++c) wc[c] += x0 * b0[c];
-    }
-    {
-      const Packet pv = pset1<Packet>(v0), pt = pset1<Packet>(tau);
-      Index c = c0;
-      for (; c < cv; c += W) {
-        const Packet wv = pmul(pt, padd(ploadu<Packet>(wc + c), pmul(pv, ploadu<Packet>(fj + c))));
-        pstoreu(wc + c, wv);
-        pstoreu(fj + c, psub(ploadu<Packet>(fj + c), pmul(wv, pv)));
-      }
-      for (; c < n; ++c) {
-        wc[c] = tau * (wc[c] + v0 * fj[c]);
-        fj[c] -= wc[c] * v0;
+  eigen_assert(m <= M && ld % W == 0);
+  Scalar* const wq = S;           // P rows of ld: the inner products D_q, then w_q
+  Scalar* const fq = S + P * ld;  // P rows of ld: rows j0 .. j0 + P - 1 of F
+  Scalar px[P * M];               // the panel's columns, column q at px + q M
+  EIGEN_ALIGN_MAX Scalar xb[kPreBroadcast ? P * M * W : 1];  // px, each entry in a whole packet
+  for (Index j0 = 0; j0 < n; j0 += P) {
+    const Index pb = n - j0 < P ? n - j0 : P;  // reflectors in this panel
+    Scalar v0[P] = {}, tau[P] = {};            // tau 0: the identity
+    for (Index r = 0; r < m; ++r)
+      for (Index q = 0; q < P; ++q) px[q * M + r] = q < pb ? B[r * ld + j0 + q] : Scalar(0);
+    // The panel, column by column.
+    for (Index q = 0; q < pb; ++q) {
+      const Index j = j0 + q;
+      Scalar* x = px + q * M;
+      Scalar sigma;
+      columnDots<1>(x, x, M, m, &sigma);
+      if (sigma == Scalar(0)) continue;  // nothing below the diagonal: identity
+      Scalar none = Scalar(0);
+      F(j, j) = makeReflector(F(j, j), sigma, x, m, Index(1), none, v0[q], tau[q]);
+      for (Index c = q + 1; c < pb; ++c) {
+        Scalar s;
+        columnDots<1>(x, px + c * M, M, m, &s);
+        s = tau[q] * (s + v0[q] * F(j, j0 + c));
+        F(j, j0 + c) -= s * v0[q];
+        columnUpdates<1>(x, px + c * M, M, m, &s);
       }
     }
-    for (Index c = c0; c < n; ++c) F(j, c) = fj[c];
-    // B(:, c0:) -= x wc', four rows per pass; sigma of column c0 on the way.
-    sigma = Scalar(0);
-    for (r = 0; r + 4 <= m; r += 4) {
-      Scalar* b0 = B + r * ld;
-      Scalar *b1 = b0 + ld, *b2 = b1 + ld, *b3 = b2 + ld;
-      const Scalar x0 = b0[j], x1 = b1[j], x2 = b2[j], x3 = b3[j];
-      const Packet p0 = pset1<Packet>(x0), p1 = pset1<Packet>(x1), p2 = pset1<Packet>(x2), p3 = pset1<Packet>(x3);
-      for (Index c = c0; c < cv; c += W) {
-        const Packet wv = ploadu<Packet>(wc + c);
-        pstoreu(b0 + c, psub(ploadu<Packet>(b0 + c), pmul(p0, wv)));
-        pstoreu(b1 + c, psub(ploadu<Packet>(b1 + c), pmul(p1, wv)));
-        pstoreu(b2 + c, psub(ploadu<Packet>(b2 + c), pmul(p2, wv)));
-        pstoreu(b3 + c, psub(ploadu<Packet>(b3 + c), pmul(p3, wv)));
-      }
-      for (Index c = cv; c < n; ++c) {
-        const Scalar wv = wc[c];
-        b0[c] -= x0 * wv;
-        b1[c] -= x1 * wv;
-        b2[c] -= x2 * wv;
-        b3[c] -= x3 * wv;
-      }
-      sigma += b0[c0] * b0[c0] + b1[c0] * b1[c0] + b2[c0] * b2[c0] + b3[c0] * b3[c0];
+    const Index c1 = j0 + pb;  // first trailing column
+    if (c1 >= n) break;
+    const Index ca = c1 / W * W;  // the packet boundary at or below it
+    const Scalar* xs = px;        // what the trailing passes broadcast x from
+    if constexpr (kPreBroadcast) {
+      for (Index q = 0; q < P; ++q)
+        for (Index r = 0; r < m; ++r) pstore(xb + (q * M + r) * W, pset1<Packet>(px[q * M + r]));
+      xs = xb;
     }
-    for (; r < m; ++r) {
-      Scalar* b0 = B + r * ld;
-      const Scalar x0 = b0[j];
-      for (Index c = c0; c < n; ++c) b0[c] -= x0 * wc[c];
-      sigma += b0[c0] * b0[c0];
+    Scalar g1[1], g2[2], g3[3];   // gq[s] = x_q' x_s, s < q
+    columnDots<1>(px + M, px, M, m, g1);
+    columnDots<2>(px + 2 * M, px, M, m, g2);
+    columnDots<3>(px + 3 * M, px, M, m, g3);
+    const Scalar* const g[P] = {nullptr, g1, g2, g3};
+    for (Index q = 0; q < P; ++q) {
+      Scalar* fr = fq + q * ld;
+      for (Index c = ca; c < ld; ++c) fr[c] = Scalar(0);
+      if (q < pb)
+        for (Index c = c1; c < n; ++c) fr[c] = F(j0 + q, c);
     }
+    // D = X' B(:, ca:), T packets of columns per pass down the block.
+    Index c = ca;
+    for (; c + T * W <= ld; c += T * W) panelDots<T>(B, ld, m, xs, M, c, wq);
+    for (; c < ld; c += W) panelDots<1>(B, ld, m, xs, M, c, wq);
+    // w_q and the rows of F, in order of q.
+    for (Index q = 0; q < P; ++q) {
+      const Packet pv = pset1<Packet>(v0[q]), pt = pset1<Packet>(tau[q]);
+      for (c = ca; c < ld; c += W) {
+        Packet d = padd(ploadu<Packet>(wq + q * ld + c), pmul(pv, ploadu<Packet>(fq + q * ld + c)));
+        for (Index s = 0; s < q; ++s) d = psub(d, pmul(pset1<Packet>(g[q][s]), ploadu<Packet>(wq + s * ld + c)));
+        const Packet w = pmul(pt, d);
+        pstoreu(wq + q * ld + c, w);
+        pstoreu(fq + q * ld + c, psub(ploadu<Packet>(fq + q * ld + c), pmul(pv, w)));
+      }
+      for (c = ca; c < c1; ++c) wq[q * ld + c] = Scalar(0);  // the panel's own columns stay
+    }
+    for (Index q = 0; q < pb; ++q)
+      for (c = c1; c < n; ++c) F(j0 + q, c) = fq[q * ld + c];
+    // B(:, ca:) -= X W.
+    for (c = ca; c + T * W <= ld; c += T * W) panelUpdates<T>(B, ld, m, xs, M, c, wq);
+    for (; c < ld; c += W) panelUpdates<1>(B, ld, m, xs, M, c, wq);
   }
 }
 
