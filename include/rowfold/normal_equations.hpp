@@ -124,14 +124,6 @@ class NormalEquations : public EstimatorBase<NormalEquations<Scalar_, K_, MaxK_>
     }
   }
 
-  /// Blocked addRows (rows already validated; see the class comment).
-  template <typename XD, typename YD, typename WD>
-  void foldRows(const Eigen::MatrixBase<XD>& X, const Eigen::MatrixBase<YD>& y, const WD* w) {
-    Eigen::Index i = 0;
-    for (Eigen::Index nb; (nb = m_block.gather(X, y, w, i)) > 0;)
-      m_block.fold(nb, w != nullptr, this->lambda(), this->interceptMode(), this->centeringState(), m_gram);
-  }
-
   /// One-pass addRows (sizes checked, guards off; see the class comment): the Status of the
   /// first bad row with the state untouched, else `ok` with every row folded.
   template <typename XD, typename YD, typename WD>
