@@ -488,6 +488,8 @@ class GivensQr : public EstimatorBase<GivensQr<Scalar_, K_, MaxK_>, Scalar_, K_,
   static constexpr int kWide = 24;
   static constexpr bool kNoWide = Dims::MaxK1 != Eigen::Dynamic && Dims::MaxK1 < kWide;
   static constexpr int kPanelRows = 2 * int(detail::kPanel);  // foldRowsHouseholder's scratch
+  static_assert(detail::RowBlock<Scalar, K_, MaxK_>::kMaxRows + 1 <= detail::kPanelMaxRows,
+                "a block and its mean-difference row must fit foldRowsHouseholder's panel copy");
   static constexpr int kWideRows = detail::RowBlock<Scalar, K_, MaxK_>::kFixedRows == Eigen::Dynamic
                                        ? Eigen::Dynamic
                                        : detail::RowBlock<Scalar, K_, MaxK_>::kFixedRows + 1 + kPanelRows;

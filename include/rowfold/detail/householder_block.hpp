@@ -163,6 +163,8 @@ void foldBlockHouseholder(FM& F, Scalar* B, Eigen::Index m, Eigen::Index ld, Sca
 /// Reflectors per panel of foldRowsHouseholder: each pass over the trailing part of the block
 /// applies this many at once.
 inline constexpr Eigen::Index kPanel = 4;
+/// Most rows foldRowsHouseholder takes in one call (its panel copy lives on the stack).
+inline constexpr Eigen::Index kPanelMaxRows = 72;
 
 /// Packets of columns per step of the panel kernels: kPanel x T accumulators stay in registers.
 template <typename Scalar>
@@ -236,9 +238,9 @@ void panelUpdates(Scalar* __restrict B, Eigen::Index ld, Eigen::Index m, const S
 }
 
 /// Row-major, blocked form of foldBlockHouseholder for wide factors (many columns, few rows per
-/// block). B holds the m <= 72 rows to fold (row-major, leading dimension ld, no extra row); ld
-/// is a multiple of the SIMD packet size, and the pad columns n .. ld-1 of B are zero. S is
-/// scratch of 2 kPanel ld entries. The same reflectors as foldBlockHouseholder, in panels of
+/// block). B holds the m <= kPanelMaxRows rows to fold (row-major, leading dimension ld, no
+/// extra row); ld is a multiple of the SIMD packet size, and the pad columns n .. ld-1 of B are
+/// zero. S is scratch of 2 kPanel ld entries. The same reflectors as foldBlockHouseholder, in panels of
 /// kPanel columns (the compact WY idea of Schreiber & Van Loan 1989, "A storage-efficient WY
 /// representation for products of Householder transformations", SIAM J. Sci. Stat. Comput.
 /// 10(1); for a triangle on a block as in LAPACK's xTPQRT):
@@ -258,7 +260,7 @@ void foldRowsHouseholder(FM& F, Scalar* __restrict B, Eigen::Index m, Eigen::Ind
   using namespace Eigen::internal;
   using Index = Eigen::Index;
   using Packet = typename packet_traits<Scalar>::type;
-  constexpr Index W = packet_traits<Scalar>::size, P = kPanel, M = 72;
+  constexpr Index W = packet_traits<Scalar>::size, P = kPanel, M = kPanelMaxRows;
   static_assert(P == 4, "the Gram products below are written out for four columns");
   constexpr int T = panelTile<Scalar>();
   const Index n = F.cols();
@@ -305,9 +307,10 @@ void foldRowsHouseholder(FM& F, Scalar* __restrict B, Eigen::Index m, Eigen::Ind
     const Scalar* const g[P] = {nullptr, g1, g2, g3};
     for (Index q = 0; q < P; ++q) {
       Scalar* fr = fq + q * ld;
-      for (Index c = ca; c < ld; ++c) fr[c] = Scalar(0);
-      if (q < pb)
-        for (Index c = c1; c < n; ++c) fr[c] = F(j0 + q, c);
+      const Index end = q < pb ? n : c1;  // row j0 + q of F on [c1, end), zeros elsewhere
+      for (Index c = ca; c < c1; ++c) fr[c] = Scalar(0);
+      for (Index c = c1; c < end; ++c) fr[c] = F(j0 + q, c);
+      for (Index c = end; c < ld; ++c) fr[c] = Scalar(0);
     }
     // D = X' B(:, ca:), T packets of columns per pass down the block.
     Index c = ca;
