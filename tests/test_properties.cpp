@@ -197,8 +197,10 @@ namespace {
 // times that (16: the centering, the weights lambda^age and the block means each add a few
 // roundings per term); the coefficients get 16 n u times the estimator's own condition
 // estimate (relative perturbation of a least-squares solution, Björck 1996 §1.4).
+// `rowMajor`: X is passed row-major (NormalEquations may then fold it in its row form, see
+// ROWFOLD_GRAM_ROW_FORM_FROM; the test_properties_row_form build forces that form).
 template <class E>
-void blockEqualsRows(double lambda, bool weighted, std::uint64_t seed, Eigen::Index k = 4) {
+void blockEqualsRows(double lambda, bool weighted, std::uint64_t seed, Eigen::Index k = 4, bool rowMajor = false) {
   std::mt19937_64 rng(seed);
   const Eigen::Index n = 203;  // several blocks and a partial one
   const Problem p = randomProblem(rng, n, k);
@@ -209,7 +211,12 @@ void blockEqualsRows(double lambda, bool weighted, std::uint64_t seed, Eigen::In
   o.forgetting = lambda;
   E rows(k, o), block(k, o);
   for (Eigen::Index i = 0; i < n; ++i) REQUIRE(rows.add(Vec(p.X.row(i).transpose()), p.y(i), w(i)) == Status::ok);
-  REQUIRE((weighted ? block.addRows(p.X, p.y, w) : block.addRows(p.X, p.y)) == Status::ok);
+  if (rowMajor) {
+    const Eigen::Matrix<double, Eigen::Dynamic, Eigen::Dynamic, Eigen::RowMajor> Xr = p.X;
+    REQUIRE((weighted ? block.addRows(Xr, p.y, w) : block.addRows(Xr, p.y)) == Status::ok);
+  } else {
+    REQUIRE((weighted ? block.addRows(p.X, p.y, w) : block.addRows(p.X, p.y)) == Status::ok);
+  }
   const double tol = 16.0 * double(n) * std::numeric_limits<double>::epsilon();
 
   CHECK(block.count() == rows.count());
@@ -257,15 +264,18 @@ void blockEqualsRows(double lambda, bool weighted, std::uint64_t seed, Eigen::In
 template <template <typename, int, int> class E>
 void blockCases(std::uint64_t seed) {
   using T = E<double, Eigen::Dynamic, Eigen::Dynamic>;
-  // k = 30: GivensQr folds blocks of 31 columns row-major (its wide form).
+  // k = 30: GivensQr folds blocks of 31 columns row-major (its wide form); X row-major: the
+  // row form of NormalEquations' addRows where it is chosen.
   for (Eigen::Index k : {4, 30})
     for (double lambda : {1.0, 0.97})
-      for (bool weighted : {false, true}) {
-        CAPTURE(k);
-        CAPTURE(lambda);
-        CAPTURE(weighted);
-        blockEqualsRows<T>(lambda, weighted, seed++, k);
-      }
+      for (bool weighted : {false, true})
+        for (bool rowMajor : {false, true}) {
+          CAPTURE(k);
+          CAPTURE(lambda);
+          CAPTURE(weighted);
+          CAPTURE(rowMajor);
+          blockEqualsRows<T>(lambda, weighted, seed++, k, rowMajor);
+        }
 }
 
 }  // namespace

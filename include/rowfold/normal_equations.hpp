@@ -141,7 +141,9 @@ class NormalEquations : public EstimatorBase<NormalEquations<Scalar_, K_, MaxK_>
       // rows); with weights the raw rows are checked (zero-weight rows are not gathered but
       // add() checks them too). On a hit, the row-by-row check from the block's first row gives
       // the Status (squares that merely overflow find no bad row: folded, as row by row).
-      if (nb > 0) age *= m_block.fold(nb, w != nullptr, lambda, mode, m_callCentering, m_call);
+      if (nb > 0)
+        age *= m_block.fold(nb, w != nullptr, lambda, mode, m_callCentering, m_call,
+                            m_block.template rowForm<XD>());
       if (w == nullptr ? !m_block.finite() : !Base::cleanRows(X, y, w, i0, i)) {
         const Status s = this->firstReject(X, y, w, i0, i);  // this block only: later ones are checked in turn
         if (s != Status::ok) {
