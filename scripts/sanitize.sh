@@ -35,7 +35,7 @@ flags="-fsanitize=address,undefined -fno-sanitize-recover=all -fno-omit-frame-po
 cmake -S . -B build-sanitize -DCMAKE_BUILD_TYPE=RelWithDebInfo -DCMAKE_CXX_COMPILER=clang++ \
   -DCMAKE_CXX_FLAGS="$flags" -DCMAKE_EXE_LINKER_FLAGS="-fsanitize=address,undefined" \
   -DCMAKE_CXX_FLAGS_RELWITHDEBINFO="-O1 -gline-tables-only -DNDEBUG" \
-  -DROWFOLD_TEST_SKIP="test_soak_long;test_nist;test_properties;test_statistics;test_tracking;test_multi_response" -DROWFOLD_TEST_LONG_DOUBLE=OFF -DROWFOLD_TEST_FLOAT=OFF \
+  -DROWFOLD_TEST_SKIP="test_soak_long;test_nist;test_nist_row_form;test_properties;test_statistics;test_tracking;test_multi_response" -DROWFOLD_TEST_LONG_DOUBLE=OFF -DROWFOLD_TEST_FLOAT=OFF \
   -DROWFOLD_BUILD_TESTS=ON -DROWFOLD_BUILD_EXAMPLES=ON -DROWFOLD_BUILD_FUZZ=ON \
   -DROWFOLD_FUZZ_SECONDS="${ROWFOLD_FUZZ_SECONDS:-30}"
 cmake --build build-sanitize -j2
