@@ -391,12 +391,12 @@ class GramBlock {
         p *= lambda;
       }
     }
+    const Scalar wB = unit ? Scalar(nb) : m_omega.head(nb).sum();  // the block's weight
     if (rows) {
-      foldRowForm(nb, unit, mode);
+      foldRowForm(nb, unit, wB, mode);
     } else {
-      foldColumnForm(nb, unit, mode);
+      foldColumnForm(nb, unit, wB, mode);
     }
-    const Scalar wB = unit ? Scalar(nb) : m_omega.head(nb).sum();
     const Scalar c = centering.mergeBlock(p, p * p, wB, m_mean, m_g(n - 1, n - 1), f, f2,
                                           static_cast<std::uint64_t>(nb), mode, m_diff);
     combine(gram, p, c, m_diff, m_g);
@@ -404,8 +404,6 @@ class GramBlock {
   }
 
  private:
-  using RowBlockMap = Eigen::Matrix<Scalar, Eigen::Dynamic, Eigen::Dynamic, Eigen::RowMajor>;
-
   /// Row form: stride of a row (K + 1 rounded up to whole packets), and rows per block (the
   /// block's storage less one row, which holds the column sums; at most one weight per row).
   auto rowStride() const {
@@ -431,9 +429,9 @@ class GramBlock {
     for (Eigen::Index j = k + 1; j < S; ++j) out[j] = Scalar(0);
   }
 
-  /// Row form: centers the nb rows on their weighted means (m_mean) and forms their co-moments
-  /// in m_g (lower triangle).
-  void foldRowForm(Eigen::Index nb, bool unit, Intercept mode) {
+  /// Row form: centers the nb rows (weight wB in all) on their weighted means (m_mean) and
+  /// forms their co-moments in m_g (lower triangle).
+  void foldRowForm(Eigen::Index nb, bool unit, Scalar wB, Intercept mode) {
     using Kernel = GramKernel<Scalar>;
     const Eigen::Index n = m_z.cols(), S = rowStride();
     Scalar* const z = m_z.data();
@@ -445,7 +443,6 @@ class GramBlock {
       } else {
         Kernel::template rowSums<true>(z, S, om, nb, sums);
       }
-      const Scalar wB = unit ? Scalar(nb) : m_omega.head(nb).sum();
       for (Eigen::Index j = 0; j < S; ++j) sums[j] /= wB;  // the means (zero on the pad columns)
       m_mean = Eigen::Map<const Vector1>(sums, n);
       Kernel::center(z, S, nb, sums);
@@ -460,7 +457,7 @@ class GramBlock {
   }
 
   /// Column form: the same from the column-major block.
-  void foldColumnForm(Eigen::Index nb, bool unit, Intercept mode) {
+  void foldColumnForm(Eigen::Index nb, bool unit, Scalar wB, Intercept mode) {
     const Eigen::Index n = m_z.cols();
     // Zero padding up to the packet size: the kernels run whole packets.
     const Eigen::Index len = (nb + kWidth - 1) / kWidth * kWidth;
@@ -469,7 +466,6 @@ class GramBlock {
       m_omega.segment(nb, len - nb).setZero();
     }
     const auto om = m_omega.head(nb);
-    const Scalar wB = unit ? Scalar(nb) : om.sum();
     if (mode == Intercept::fit) {
       if (unit) GramKernel<Scalar>::columnSums(m_z.data(), stride(), len, n, m_mean);
       for (Eigen::Index j = 0; j < n; ++j) {
