@@ -375,9 +375,10 @@ class GramBlock {
   /// NUMERICS §4.1, §5): rows weighted by w lambda^age within the block (age nb-1-r for row r),
   /// centered on the block's weighted means, G <- lambda^nb G + c diff diff' + Z' diag(omega) Z.
   /// Returns lambda^nb.
-  /// `rows`: the block was gathered in the row form (rowForm).
+  /// `rows`: rowForm<XD>() of the X that `gather` copied the block from (no default: the two
+  /// must agree).
   Scalar fold(Eigen::Index nb, bool weighted, Scalar lambda, Intercept mode, Centering<Scalar, K, MaxK>& centering,
-              Matrix1& gram, bool rows = false) {
+              Matrix1& gram, bool rows) {
     const Eigen::Index n = m_z.cols();
     Scalar p = Scalar(1), f = Scalar(nb), f2 = Scalar(nb);
     const bool unit = !weighted && lambda == Scalar(1);
