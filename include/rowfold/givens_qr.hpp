@@ -333,12 +333,10 @@ class GivensQr : public EstimatorBase<GivensQr<Scalar_, K_, MaxK_>, Scalar_, K_,
 
   /// Folds the centered row d with weight delta (Gentleman 1973; see the class comment).
   ///
-  /// Rows of the state are taken kRowBlock at a time: the rotations of a block are found on its
-  /// diagonal block (scalar work: the short dependency chain and the divisions), then applied to
-  /// the rest of the block's rows in one sweep over the columns, the reduced row staying in
-  /// registers across the block's rows (no column-to-column dependency through memory). The
-  /// usual block goes through foldBlockDirect (no branch per entry); the entry-by-entry code
-  /// below serves the rest: empty columns, weights out of range, dominant rows.
+  /// Rows of the state are taken kRowBlock at a time (foldBlockDirect): the usual block, whose
+  /// rows all take the reciprocal weight form and the one-term rotation, is folded without a
+  /// branch per entry. Where a block declines, its first row is folded alone (foldRow: an empty
+  /// column, a weight out of range, a dominant row) and the next block starts after that row.
   template <typename VD>
   void foldCentered(const VD& d, Scalar deltaIn, Scalar lambda) {
     const Eigen::Index n = m_state.rows();
@@ -364,80 +362,32 @@ class GivensQr : public EstimatorBase<GivensQr<Scalar_, K_, MaxK_>, Scalar_, K_,
       return;
     }
     Scalar deltaCur = delta;  // delta_i itself (off the chain)
-    bool usedUp = false;      // the row's weight has gone to zero: the remaining rows only age
-    Scalar* __restrict x = m_x.data();
-    Scalar* const base = m_state.data();
-    // 1/(lambda d_i) for every row at once (vectorized; inf for an empty row, which then takes
-    // the direct form below).
+    Scalar* const x = m_x.data();
+    const Scalar* const base = m_state.data();
+    // 1/(lambda d_i) for every row at once (vectorized; inf for an empty row, whose block then
+    // declines).
     for (Eigen::Index i = 0; i < n; ++i) m_rld(i) = base[i * (ns + 1)];
     m_rld = (lambda * m_rld).cwiseInverse();
-    for (Eigen::Index i0 = 0; i0 < n; i0 += kRowBlock) {
-      const Eigen::Index m = n - i0 < kRowBlock ? n - i0 : kRowBlock;
-      if (!usedUp && foldBlockDirect(x, i0, m, lambda, invDelta, deltaCur)) continue;
-      Scalar bq[kRowBlock], sq[kRowBlock], cq[kRowBlock];
-      bool fast = true;
-      // Diagonal block: the rotation of each row, applied within the block.
-      for (Eigen::Index q = 0; q < m; ++q) {
-        const Eigen::Index i = i0 + q;
-        Scalar* __restrict r = base + i * ns;
-        const Scalar b = usedUp ? Scalar(0) : x[i];
-        const Scalar ld = lambda * r[i];
-        Scalar cbar = Scalar(1), sbar = Scalar(0);
-        if (b == Scalar(0)) {
-          r[i] = ld;
-        } else {
-          const Scalar rld = m_rld(i);
-          const Scalar invNew = invDelta + b * (b * rld);
-          if (ld > Scalar(0) && invNew <= kMax) {
-            // Reciprocal-weight form: the divisions do not feed the next column.
-            const Scalar deltaNew = Scalar(1) / invNew;
-            cbar = invDelta * deltaNew;
-            sbar = b * rld * deltaNew;
-            r[i] = ld + deltaCur * b * b;
-            invDelta = invNew;
-            deltaCur = deltaNew;
-          } else {
-            // Direct form (empty or negligible column against a dominant row).
-            const Scalar dNew = ld + deltaCur * b * b;
-            cbar = ld / dNew;
-            sbar = deltaCur * b / dNew;
-            r[i] = dNew;
-            deltaCur = deltaCur * cbar;
-            invDelta = Scalar(1) / deltaCur;
-            if (!(deltaCur > Scalar(0)) || !(invDelta <= kMax)) usedUp = true;
-          }
-        }
-        bq[q] = b;
-        sq[q] = sbar;
-        cq[q] = cbar;
-        fast = fast && cbar >= kCbarSplit;
-        for (Eigen::Index j = i + 1; j < i0 + m; ++j) rotate(x[j], r[j], b, cbar, sbar);
-      }
-      // The block's rows beyond the diagonal block.
-      const Eigen::Index j0 = i0 + m;
-      if (j0 >= n) break;
-      Scalar* __restrict r0 = base + i0 * ns;
-      if (m == 4 && fast) {
-        sweepFour(x, i0, bq, sq);
+    for (Eigen::Index i = 0; i < n;) {
+      const Eigen::Index m = n - i < kRowBlock ? n - i : kRowBlock;
+      if (foldBlockDirect(x, i, m, lambda, invDelta, deltaCur)) {
+        i += m;
+      } else if (foldRow(x, i, lambda, invDelta, deltaCur)) {
+        ++i;
       } else {
-        for (Eigen::Index q = 0; q < m; ++q) {
-          Scalar* __restrict r = r0 + q * ns;
-          const Scalar b = bq[q], cbar = cq[q], sbar = sq[q];
-          if (b == Scalar(0)) continue;
-          for (Eigen::Index j = j0; j < n; ++j) rotate(x[j], r[j], b, cbar, sbar);
-        }
+        ageDiagonal(i + 1, lambda);  // the row's weight is used up: the remaining rows only age
+        return;
       }
     }
   }
 
-  /// The usual case of one block of foldCentered, without a branch per entry: the block's
+  /// The usual block of foldCentered, rows i0..i0+M-1, without a branch per entry: the block's
   /// reduced row entries b_q are found first (its diagonal block only), then its weights in the
   /// reciprocal form, 1/delta_(q+1) = 1/delta_q + b_q^2/(lambda d_q), with one independent
-  /// division per row, and every entry of the block's rows takes the one-term rotation. Declines
-  /// (returns false, nothing written) when a row of the block needs the direct form (an empty
-  /// column, a weight out of range) or the two-term rotation (cbar < kCbarSplit); the caller then
-  /// folds the block entry by entry. The same formulas as the entry-by-entry fold.
-  /// `x` is the reduced row (m_x), updated beyond the block.
+  /// division per row, and every entry of the block's rows takes the one-term rotation
+  /// (see rotate()). Declines (returns false, nothing written) when a row of the block needs the
+  /// direct form (an empty column, a weight out of range) or the two-term rotation
+  /// (cbar < kCbarSplit). `x` is the reduced row (m_x), updated beyond the block.
   ///
   /// Forced inline (with sweepFour): called out of line, the chain values passed by reference
   /// and the caller's loop variables went through the stack, and those reloads waited on the
@@ -507,25 +457,21 @@ class GivensQr : public EstimatorBase<GivensQr<Scalar_, K_, MaxK_>, Scalar_, K_,
     }
     invDelta = M == 1 ? u1 : M == 2 ? u2 : M == 3 ? u3 : u4;
     deltaCur = M == 1 ? dl1 : M == 2 ? dl2 : M == 3 ? dl3 : dl4;
-    if constexpr (M == 4) {
-      if (i0 + M < m_state.rows()) {
-        const Scalar bq[4] = {b0, b1, b2, b3}, sq[4] = {s0, s1, s2, s3};
-        sweepFour(x, i0, bq, sq);
-      }
-    }
+    // A block of fewer than four rows ends the state (see foldCentered): nothing beyond it.
+    if constexpr (M == 4)
+      if (i0 + M < m_state.rows()) sweepFour(x, i0, b0, b1, b2, b3, s0, s1, s2, s3);
     return true;
   }
 
   /// The one-term rotations of rows i0..i0+3 applied to the columns beyond their diagonal
   /// block, the reduced row staying in registers across the four rows.
-  EIGEN_ALWAYS_INLINE void sweepFour(Scalar* __restrict x, Eigen::Index i0, const Scalar* b, const Scalar* s) {
+  EIGEN_ALWAYS_INLINE void sweepFour(Scalar* __restrict x, Eigen::Index i0, Scalar b0, Scalar b1, Scalar b2, Scalar b3,
+                                     Scalar s0, Scalar s1, Scalar s2, Scalar s3) {
     const Eigen::Index n = m_state.rows(), ns = m_state.cols();
     Scalar* __restrict r0 = m_state.data() + i0 * ns;
     Scalar* __restrict r1 = r0 + ns;
     Scalar* __restrict r2 = r1 + ns;
     Scalar* __restrict r3 = r2 + ns;
-    const Scalar b0 = b[0], b1 = b[1], b2 = b[2], b3 = b[3];
-    const Scalar s0 = s[0], s1 = s[1], s2 = s[2], s3 = s[3];
     for (Eigen::Index j = i0 + 4; j < n; ++j) {
       const Scalar t0 = x[j] - b0 * r0[j];
       r0[j] += s0 * t0;
@@ -537,6 +483,40 @@ class GivensQr : public EstimatorBase<GivensQr<Scalar_, K_, MaxK_>, Scalar_, K_,
       r3[j] += s3 * t3;
       x[j] = t3;
     }
+  }
+
+  /// One row i of the state alone, for the blocks that foldBlockDirect declines: the weight in
+  /// the reciprocal form where it holds, else by the direct formulas of the class comment (an
+  /// empty column, or a weight that would leave the range); the one-term rotation unless the row
+  /// dominates (see rotate()). False when the row's weight is used up.
+  bool foldRow(Scalar* __restrict x, Eigen::Index i, Scalar lambda, Scalar& invDelta, Scalar& deltaCur) {
+    constexpr Scalar kMax = std::numeric_limits<Scalar>::max();
+    const Eigen::Index n = m_state.rows();
+    Scalar* __restrict r = m_state.data() + i * m_state.cols();
+    const Scalar b = x[i], ld = lambda * r[i];
+    if (b == Scalar(0)) {
+      r[i] = ld;
+      return true;
+    }
+    const Scalar c = b * m_rld(i), invNew = invDelta + b * c;
+    Scalar cbar, sbar;
+    if (ld > Scalar(0) && invNew <= kMax) {
+      const Scalar deltaNew = Scalar(1) / invNew;
+      cbar = invDelta * deltaNew;
+      sbar = c * deltaNew;
+      r[i] = ld + deltaCur * b * b;
+      invDelta = invNew;
+      deltaCur = deltaNew;
+    } else {
+      const Scalar dNew = ld + deltaCur * b * b;
+      cbar = ld / dNew;
+      sbar = deltaCur * b / dNew;
+      r[i] = dNew;
+      deltaCur = deltaCur * cbar;
+      invDelta = Scalar(1) / deltaCur;
+    }
+    for (Eigen::Index j = i + 1; j < n; ++j) rotate(x[j], r[j], b, cbar, sbar);
+    return deltaCur > Scalar(0) && invDelta <= kMax;
   }
 
   /// Chooses the power-of-4 scale so that the incoming row's delta b^2 lands near the middle of
