@@ -364,10 +364,12 @@ class GivensQr : public EstimatorBase<GivensQr<Scalar_, K_, MaxK_>, Scalar_, K_,
     Scalar deltaCur = delta;  // delta_i itself (off the chain)
     Scalar* const x = m_x.data();
     const Scalar* const base = m_state.data();
-    // 1/(lambda d_i) for every row at once (vectorized; inf for an empty row, whose block then
-    // declines).
-    for (Eigen::Index i = 0; i < n; ++i) m_rld(i) = base[i * (ns + 1)];
-    m_rld = (lambda * m_rld).cwiseInverse();
+    // 1/(lambda d_i) for every row (inf for an empty row, whose block then declines), read
+    // straight off the diagonal. Gathered into m_rld first and inverted there, the vector loads
+    // waited on the gather's scalar stores (no store forwarding): dynamic K = 8, double, native,
+    // 96 ns per sample against 67 ns read straight off.
+    m_rld = (lambda * Eigen::Map<const Vector1, 0, Eigen::InnerStride<>>(base, n, Eigen::InnerStride<>(ns + 1)))
+                .cwiseInverse();
     for (Eigen::Index i = 0; i < n;) {
       const Eigen::Index m = n - i < kRowBlock ? n - i : kRowBlock;
       if (foldBlockDirect(x, i, m, lambda, invDelta, deltaCur)) {
