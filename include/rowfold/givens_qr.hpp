@@ -335,8 +335,8 @@ class GivensQr : public EstimatorBase<GivensQr<Scalar_, K_, MaxK_>, Scalar_, K_,
   ///
   /// Rows of the state are taken kRowBlock at a time (foldBlockDirect): the usual block, whose
   /// rows all take the reciprocal weight form and the one-term rotation, is folded without a
-  /// branch per entry. Where a block declines, its first row is folded alone (foldRow: an empty
-  /// column, a weight out of range, a dominant row) and the next block starts after that row.
+  /// branch per entry. Where a block declines, its first row is folded alone (foldStateRow: an
+  /// empty column, a weight out of range, a dominant row) and the next block starts after it.
   template <typename VD>
   void foldCentered(const VD& d, Scalar deltaIn, Scalar lambda) {
     const Eigen::Index n = m_state.rows();
@@ -374,7 +374,7 @@ class GivensQr : public EstimatorBase<GivensQr<Scalar_, K_, MaxK_>, Scalar_, K_,
       const Eigen::Index m = n - i < kRowBlock ? n - i : kRowBlock;
       if (foldBlockDirect(x, i, m, lambda, invDelta, deltaCur)) {
         i += m;
-      } else if (foldRow(x, i, lambda, invDelta, deltaCur)) {
+      } else if (foldStateRow(x, i, lambda, invDelta, deltaCur)) {
         ++i;
       } else {
         ageDiagonal(i + 1, lambda);  // the row's weight is used up: the remaining rows only age
@@ -491,7 +491,7 @@ class GivensQr : public EstimatorBase<GivensQr<Scalar_, K_, MaxK_>, Scalar_, K_,
   /// the reciprocal form where it holds, else by the direct formulas of the class comment (an
   /// empty column, or a weight that would leave the range); the one-term rotation unless the row
   /// dominates (see rotate()). False when the row's weight is used up.
-  bool foldRow(Scalar* __restrict x, Eigen::Index i, Scalar lambda, Scalar& invDelta, Scalar& deltaCur) {
+  bool foldStateRow(Scalar* __restrict x, Eigen::Index i, Scalar lambda, Scalar& invDelta, Scalar& deltaCur) {
     constexpr Scalar kMax = std::numeric_limits<Scalar>::max();
     const Eigen::Index n = m_state.rows();
     Scalar* __restrict r = m_state.data() + i * m_state.cols();
