@@ -107,8 +107,10 @@ class NormalEquations : public EstimatorBase<NormalEquations<Scalar_, K_, MaxK_>
     // about a digit more than delta d_i d_j on exact-fit data (NIST Wampler1: 7.8 vs 6.5).
     m_u = std::sqrt(delta) * d;
     if constexpr (kUnrolledRank1) {
-      rank1Unrolled(std::make_integer_sequence<int, K_ + 1>{}, lambda);
-      return;
+      if (lambda == Scalar(1)) {
+        rank1Unrolled(std::make_integer_sequence<int, K_ + 1>{});
+        return;
+      }
     }
     const Eigen::Index n = m_gram.cols();
     Scalar* const g = m_gram.data();
@@ -129,31 +131,29 @@ class NormalEquations : public EstimatorBase<NormalEquations<Scalar_, K_, MaxK_>
     }
   }
 
-  // Fixed K: the same update, each column a loop of compile-time length and the sequence of
-  // columns unrolled, so that no column pays a runtime loop's prologue and epilogue (native
-  // bench, double: K = 8 33 -> 22 ns/sample, K = 16 57 -> 40, K = 32 132 -> 80; bench/README,
-  // rank-1 round). Plain loops, not Eigen blocks: fixed-size blocks of every length cost +8 s of
-  // compile time per instantiation at K = 32, these nothing measurable. The column is written
-  // again here rather than shared with the runtime loops above: a shared helper with runtime
-  // index arguments measured 5-15 % slower at fixed K = 16 and 32 (float 34 -> 39 ns at K = 16).
+  // Fixed K, lambda = 1: the same update, each column a loop of compile-time length and the
+  // sequence of columns unrolled, so that no column pays a runtime loop's prologue and epilogue
+  // (native bench, double: K = 8 33 -> 22 ns/sample, K = 16 57 -> 40, K = 32 132 -> 80;
+  // bench/README, rank-1 round). Plain loops, not Eigen blocks: fixed-size blocks of every
+  // length cost +8 s of compile time per instantiation at K = 32, these nothing measurable.
+  // Not with forgetting: lambda g + a v has two products, and a compiler that fuses
+  // multiply-adds may fuse either one. Unrolled, the guarded and the plain path stopped folding
+  // the same bits under g++ on aarch64 (tests/test_tracking.cpp, "an inert guard"); the runtime
+  // loops below keep one choice. g + a v has one fused form only.
   static constexpr bool kUnrolledRank1 = K_ != Eigen::Dynamic;
 
   template <int... J>
-  EIGEN_ALWAYS_INLINE void rank1Unrolled(std::integer_sequence<int, J...>, Scalar lambda) {
+  EIGEN_ALWAYS_INLINE void rank1Unrolled(std::integer_sequence<int, J...>) {
     Scalar* const g = m_gram.data();
     const Scalar* __restrict v = m_u.data();
-    if (lambda == Scalar(1)) {
-      (rank1Column<J, false>(g, v, lambda), ...);
-    } else {
-      (rank1Column<J, true>(g, v, lambda), ...);
-    }
+    (rank1Column<J>(g, v), ...);
   }
-  template <int J, bool Aging>
-  static EIGEN_ALWAYS_INLINE void rank1Column(Scalar* g, const Scalar* __restrict v, Scalar lambda) {
+  template <int J>
+  static EIGEN_ALWAYS_INLINE void rank1Column(Scalar* g, const Scalar* __restrict v) {
     constexpr int n = K_ + 1;
     Scalar* __restrict gj = g + J * n;
     const Scalar a = v[J];
-    for (int i = J; i < n; ++i) gj[i] = (Aging ? lambda * gj[i] : gj[i]) + a * v[i];
+    for (int i = J; i < n; ++i) gj[i] += a * v[i];
   }
 
   /// One-pass addRows (sizes checked, guards off; see the class comment): the Status of the
