@@ -139,7 +139,9 @@ class NormalEquations : public EstimatorBase<NormalEquations<Scalar_, K_, MaxK_>
   // Not with forgetting: lambda g + a v has two products, and a compiler that fuses
   // multiply-adds may fuse either one. Unrolled, the guarded and the plain path stopped folding
   // the same bits under g++ on aarch64 (tests/test_tracking.cpp, "an inert guard"); the runtime
-  // loops below keep one choice. g + a v has one fused form only.
+  // loops above keep one choice. g + a v has one fused form only. The column is written again
+  // here rather than shared with the runtime loops: a helper with runtime index arguments
+  // (constants once inlined) measured 5-15 % slower at fixed K = 16 and 32.
   static constexpr bool kUnrolledRank1 = K_ != Eigen::Dynamic;
 
   template <int... J>
