@@ -8,6 +8,7 @@
 
 #include "rowfold/detail/cholesky.hpp"
 #include "rowfold/detail/givens.hpp"
+#include "rowfold/detail/short_dot.hpp"
 #include "rowfold/estimator_base.hpp"
 
 namespace rowfold {
@@ -204,22 +205,22 @@ class ForgettingRls : public EstimatorBase<ForgettingRls<Scalar_, K_, MaxK_>, Sc
     // theta (the same expressions, so the same bits).
     const bool prior = this->priorOnRow();
     if (!prior) gainOf(phi, m_gain);
-    const Scalar alpha = lambda + delta * (prior ? m_priorGain : phi.dot(m_gain));
-    const Scalar e = prior ? m_priorError : eta - phi.dot(m_theta);
+    const Scalar alpha = lambda + delta * (prior ? m_priorGain : rowDot(phi, m_gain));
+    const Scalar e = prior ? m_priorError : eta - rowDot(phi, m_theta);
     if (!(alpha > Scalar(0)) || !std::isfinite(alpha)) {
       m_lost = true;
       return;
     }
     const Scalar kappa = delta / alpha;
     m_theta += (kappa * e) * m_gain;
+    bool positive;
     if (lambda == Scalar(1)) {
-      sweepP<false>(Scalar(1), kappa);
+      positive = sweepP<false>(Scalar(1), kappa);
     } else {
       // 1/lambda: precomputed for the configured factor; a guard's step factor divides here.
       const Scalar il = lambda == m_lambdaOption ? m_invLambda : Scalar(1) / lambda;
-      sweepP<true>(il, kappa * il);
+      positive = sweepP<true>(il, kappa * il);
     }
-    const bool positive = (m_P.diagonal().array() > Scalar(0)).all();
     m_sse = lambda * (m_sse + kappa * e * e);
     if (!positive) m_lost = true;
   }
@@ -241,12 +242,14 @@ class ForgettingRls : public EstimatorBase<ForgettingRls<Scalar_, K_, MaxK_>, Sc
   ///   vectorizer handles without Eigen's alignment peeling on every column. Updating only the
   ///   lower triangle costs up to 1.7x more instructions here (short runtime-length columns);
   /// - above: only the lower triangle (half the arithmetic, no copy, nothing to keep symmetric).
+  /// Returns whether every diagonal entry of the new P is > 0.
   template <bool Aged>
-  void sweepP(Scalar il, Scalar s) {
+  bool sweepP(Scalar il, Scalar s) {
     const Eigen::Index k = this->regressors();
     Scalar* const P = m_P.data();
     const Scalar* __restrict g = m_gain.data();
     if (lowerOnly()) {
+      bool positive = true;
       for (Eigen::Index j = 0; j < k; ++j) {
         Scalar* __restrict pj = P + j * k;
         const Scalar gj = g[j];
@@ -256,8 +259,9 @@ class ForgettingRls : public EstimatorBase<ForgettingRls<Scalar_, K_, MaxK_>, Sc
           else
             pj[i] -= (g[i] * gj) * s;
         }
+        positive &= pj[j] > Scalar(0);
       }
-      return;
+      return positive;
     }
     if constexpr (K_ != Eigen::Dynamic) {
       for (Eigen::Index j = 0; j < k; ++j) {
@@ -282,13 +286,30 @@ class ForgettingRls : public EstimatorBase<ForgettingRls<Scalar_, K_, MaxK_>, Sc
     // into an FMA in one entry and not, or around the other multiply, in its mirror (seen on
     // aarch64, fixed and dynamic K): P loses exact symmetry, and the antisymmetric part then
     // grows like lambda^-n (Verhaegen 1989) until the fit breaks down. Copying the lower
-    // triangle over the upper keeps P symmetric whatever the compiler fuses.
-    for (Eigen::Index j = 1; j < k; ++j)
-      for (Eigen::Index i = 0; i < j; ++i) m_P(i, j) = m_P(j, i);
+    // triangle over the upper keeps P symmetric whatever the compiler fuses. Four entries of a
+    // row of the lower triangle are loaded before they are stored as a column segment (one
+    // entry per pass, as before: a load, a store and three loop instructions each; the update
+    // took 14 % longer at runtime K = 16, float, and twice as long at fixed K = 32, float;
+    // bench/README.md, "Runtime-K gain round").
+    for (Eigen::Index j = 1; j < k; ++j) {
+      Scalar* __restrict upper = P + j * k;    // P(0..j-1, j), then P(j, j)
+      const Scalar* __restrict lower = P + j;  // P(j, i) = lower[i k]
+      Eigen::Index i = 0;
+      for (; i + 4 <= j; i += 4) {
+        const Scalar a0 = lower[i * k], a1 = lower[(i + 1) * k], a2 = lower[(i + 2) * k], a3 = lower[(i + 3) * k];
+        upper[i] = a0;
+        upper[i + 1] = a1;
+        upper[i + 2] = a2;
+        upper[i + 3] = a3;
+      }
+      for (; i < j; ++i) upper[i] = lower[i * k];
+    }
+    return (m_P.diagonal().array() > Scalar(0)).all();
   }
 
-  /// g = P phi. Both triangles kept: one dot product per entry (P's columns are its rows), each
-  /// g_i summed in a register, with no store-to-load chain through g between columns. Lower
+  /// g = P phi. Both triangles kept, fixed K: one dot product per entry (P's columns are its
+  /// rows), each g_i summed in a register, with no store-to-load chain through g between
+  /// columns; runtime K: the sum of phi_j times the columns, four columns a pass (below). Lower
   /// triangle only: per column j, g_j gets the dot product of the column's lower part with
   /// phi's tail, and the entries below j get phi_j times the column below the diagonal.
   template <typename VD, typename GD>
@@ -303,7 +324,43 @@ class ForgettingRls : public EstimatorBase<ForgettingRls<Scalar_, K_, MaxK_>, Sc
       }
       return;
     }
+    if constexpr (K_ == Eigen::Dynamic) {
+      // g = sum_j phi_j P(:,j), four columns a pass: plain loops over i, which the vectorizer
+      // handles at any runtime k. (Eigen's dot on a runtime length shorter than one packet runs
+      // scalar: float k = 8 with 16-float packets; the dot form took 30 % of the update there.)
+      const Scalar* const P = m_P.data();
+      const Scalar* __restrict f = phi.data();
+      Scalar* __restrict gi = g.data();
+      Eigen::Index j = 0;
+      for (Eigen::Index i = 0; i < k; ++i) gi[i] = Scalar(0);
+      for (; j + 4 <= k; j += 4) {
+        const Scalar* __restrict p0 = P + j * k;
+        const Scalar* __restrict p1 = p0 + k;
+        const Scalar* __restrict p2 = p1 + k;
+        const Scalar* __restrict p3 = p2 + k;
+        const Scalar f0 = f[j], f1 = f[j + 1], f2 = f[j + 2], f3 = f[j + 3];
+        for (Eigen::Index i = 0; i < k; ++i) gi[i] += (f0 * p0[i] + f1 * p1[i]) + (f2 * p2[i] + f3 * p3[i]);
+      }
+      for (; j < k; ++j) {
+        const Scalar* __restrict pj = P + j * k;
+        const Scalar fj = f[j];
+        for (Eigen::Index i = 0; i < k; ++i) gi[i] += fj * pj[i];
+      }
+      return;
+    }
     for (Eigen::Index i = 0; i < g.size(); ++i) g(i) = m_P.col(i).dot(phi);
+  }
+
+  /// a'b of two K-vectors with unit stride: Eigen's dot for a fixed K, interleaved partial sums
+  /// for a runtime K of 4 or more (detail::interleavedDot; Eigen's dot runs scalar there when K
+  /// is shorter than one packet; below 4 Eigen's scalar loop measured faster). MultiResponse's
+  /// extra responses use it too: their alpha is the lead's, bit for bit.
+  template <typename A, typename B>
+  static Scalar rowDot(const A& a, const B& b) {
+    if constexpr (K_ == Eigen::Dynamic)
+      return a.size() < 4 ? a.dot(b) : detail::interleavedDot<8>(a.data(), b.data(), a.size());
+    else
+      return a.dot(b);
   }
 
   void ageState(Scalar f) {
@@ -333,8 +390,8 @@ class ForgettingRls : public EstimatorBase<ForgettingRls<Scalar_, K_, MaxK_>, Sc
     const Eigen::Index k = this->regressors();
     const auto phi = detail::headOf<K_>(row, k);
     gainOf(phi, m_gain);
-    h = m_priorGain = phi.dot(m_gain);
-    e = m_priorError = row(k) - phi.dot(m_theta);
+    h = m_priorGain = rowDot(phi, m_gain);
+    e = m_priorError = row(k) - rowDot(phi, m_theta);
     return true;
   }
 

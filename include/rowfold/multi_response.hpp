@@ -814,11 +814,11 @@ class MultiResponse {
     static_assert(Form == 2, "shared gain only");
     const Eigen::Index k = m_k;
     if (wasRecursive) {
-      const Scalar alpha = lam + delta * m_phi.dot(m_joint.m_gain);
+      const Scalar alpha = lam + delta * Joint::rowDot(m_phi, m_joint.m_gain);  // the lead's sum
       if (!(alpha > Scalar(0)) || !std::isfinite(alpha)) return;  // the lead refused the row too
       const Scalar kappa = delta / alpha;
       for (Eigen::Index j = 0; j < m_m - 1; ++j) {
-        const Scalar e = m_eta(j) - m_phi.dot(m_theta.col(j));
+        const Scalar e = m_eta(j) - Joint::rowDot(m_phi, m_theta.col(j));
         m_theta.col(j) += (kappa * e) * m_joint.m_gain;
         m_sse(j) = lam * (m_sse(j) + kappa * e * e);
       }

@@ -10,6 +10,7 @@
 
 #include "rowfold/centering.hpp"
 #include "rowfold/detail/dims.hpp"
+#include "rowfold/detail/short_dot.hpp"
 #include "rowfold/options.hpp"
 
 namespace rowfold::detail {
@@ -72,24 +73,6 @@ void prefetchRows(const Eigen::MatrixBase<XD>& X, const Eigen::MatrixBase<YD>& y
   (void)i;
   (void)m;
 #endif
-}
-
-/// sum_r a_r b_r over r < m (b == nullptr: sum_r a_r) in four interleaved partial sums:
-/// independent adders instead of one chain that waits on the adder's latency at every step.
-template <typename Scalar>
-Scalar blockDot(const Scalar* __restrict a, const Scalar* __restrict b, Eigen::Index m) {
-  Scalar s[4] = {Scalar(0), Scalar(0), Scalar(0), Scalar(0)};
-  Eigen::Index r = 0;
-  if (b == nullptr) {
-    for (; r + 4 <= m; r += 4)
-      for (int l = 0; l < 4; ++l) s[l] += a[r + l];
-    for (; r < m; ++r) s[0] += a[r];
-  } else {
-    for (; r + 4 <= m; r += 4)
-      for (int l = 0; l < 4; ++l) s[l] += a[r + l] * b[r + l];
-    for (; r < m; ++r) s[0] += a[r] * b[r];
-  }
-  return (s[0] + s[1]) + (s[2] + s[3]);
 }
 
 /// Scratch for one block of rows [x y] (column-major, so each column of the block is
@@ -180,17 +163,17 @@ class RowBlock {
       }
     }
     const Scalar* const om = unit ? nullptr : m_omega.data();  // nullptr: unit weights
-    const Scalar wB = unit ? Scalar(nb) : blockDot(m_omega.data(), static_cast<const Scalar*>(nullptr), nb);
+    const Scalar wB = unit ? Scalar(nb) : interleavedDot<4>(m_omega.data(), static_cast<const Scalar*>(nullptr), nb);
     if (mode == Intercept::fit) {
       for (Eigen::Index j = 0; j < n; ++j) {
-        m_mean(j) = blockDot(m_z.col(j).data(), om, nb) / wB;
+        m_mean(j) = interleavedDot<4>(m_z.col(j).data(), om, nb) / wB;
         m_z.col(j).head(nb).array() -= m_mean(j);
       }
     } else {
       m_mean.setZero();
     }
     const auto yc = m_z.col(n - 1).head(nb);
-    const Scalar syyB = unit ? blockDot(yc.data(), yc.data(), nb) : m_omega.head(nb).dot(yc.cwiseAbs2());
+    const Scalar syyB = unit ? interleavedDot<4>(yc.data(), yc.data(), nb) : m_omega.head(nb).dot(yc.cwiseAbs2());
     const Scalar c =
         centering.mergeBlock(p, p * p, wB, m_mean, syyB, f, f2, static_cast<std::uint64_t>(nb), mode, m_diff);
     return Merge{p, c, unit};
