@@ -287,10 +287,10 @@ class ForgettingRls : public EstimatorBase<ForgettingRls<Scalar_, K_, MaxK_>, Sc
     // aarch64, fixed and dynamic K): P loses exact symmetry, and the antisymmetric part then
     // grows like lambda^-n (Verhaegen 1989) until the fit breaks down. Copying the lower
     // triangle over the upper keeps P symmetric whatever the compiler fuses. Four entries of a
-    // row of the lower triangle are loaded before they are stored as a column segment (one
-    // entry per pass, as before: a load, a store and three loop instructions each; the update
-    // took 14 % longer at runtime K = 16, float, and twice as long at fixed K = 32, float;
-    // bench/README.md, "Runtime-K gain round").
+    // row of the lower triangle are loaded, then stored as a column segment. (The loop before
+    // moved one entry a pass, a load, a store and three loop instructions each, and the update
+    // took 14 % longer at runtime K = 16, float, twice as long at fixed K = 32, float;
+    // bench/README.md, "Runtime-K gain round".)
     for (Eigen::Index j = 1; j < k; ++j) {
       Scalar* __restrict upper = P + j * k;    // P(0..j-1, j), then P(j, j)
       const Scalar* __restrict lower = P + j;  // P(j, i) = lower[i k]
