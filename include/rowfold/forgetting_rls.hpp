@@ -286,13 +286,21 @@ class ForgettingRls : public EstimatorBase<ForgettingRls<Scalar_, K_, MaxK_>, Sc
     // into an FMA in one entry and not, or around the other multiply, in its mirror (seen on
     // aarch64, fixed and dynamic K): P loses exact symmetry, and the antisymmetric part then
     // grows like lambda^-n (Verhaegen 1989) until the fit breaks down. Copying the lower
-    // triangle over the upper keeps P symmetric whatever the compiler fuses. Four entries of a
-    // row of the lower triangle are loaded, then stored as a column segment. (The loop before
-    // moved one entry a pass, a load, a store and three loop instructions each, and the update
-    // took 14 % longer at runtime K = 16, float, twice as long at fixed K = 32, float;
-    // bench/README.md, "Runtime-K gain round".)
+    // triangle over the upper keeps P symmetric whatever the compiler fuses.
+    mirrorLower();
+    return (m_P.diagonal().array() > Scalar(0)).all();
+  }
+
+  /// Copies P's lower triangle over the upper one. Four entries of a row of the lower triangle
+  /// are loaded, then stored as a column segment. (The loop before moved one entry a pass, a
+  /// load, a store and three loop instructions each, and the update took 14 % longer at runtime
+  /// K = 16, float, twice as long at fixed K = 32, float; bench/README.md, "Runtime-K gain
+  /// round".)
+  void mirrorLower() {
+    const Eigen::Index k = this->regressors();
+    Scalar* const P = m_P.data();
     for (Eigen::Index j = 1; j < k; ++j) {
-      Scalar* __restrict upper = P + j * k;    // P(0..j-1, j), then P(j, j)
+      Scalar* __restrict upper = P + j * k;    // P(0..j-1, j)
       const Scalar* __restrict lower = P + j;  // P(j, i) = lower[i k]
       Eigen::Index i = 0;
       for (; i + 4 <= j; i += 4) {
@@ -304,7 +312,6 @@ class ForgettingRls : public EstimatorBase<ForgettingRls<Scalar_, K_, MaxK_>, Sc
       }
       for (; i < j; ++i) upper[i] = lower[i * k];
     }
-    return (m_P.diagonal().array() > Scalar(0)).all();
   }
 
   /// g = P phi. Both triangles kept, fixed K: one dot product per entry (P's columns are its
@@ -455,8 +462,7 @@ class ForgettingRls : public EstimatorBase<ForgettingRls<Scalar_, K_, MaxK_>, Sc
     detail::invertUpper(ws.scratch, ws.Rinv);
     m_theta = ws.v2;
     m_P.noalias() = ws.Rinv.lazyProduct(ws.Rinv.transpose());  // Rinv is upper triangular, zeros below
-    for (Eigen::Index j = 1; j < k; ++j)  // exactly symmetric (both triangles are updated)
-      for (Eigen::Index i = 0; i < j; ++i) m_P(i, j) = m_P(j, i);
+    mirrorLower();  // exactly symmetric (both triangles are updated)
     m_sse = sse;
     m_recursive = true;
   }
