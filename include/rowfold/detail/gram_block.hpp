@@ -42,27 +42,28 @@ struct GramKernel {
   /// Column pairs against row chunks of at most 6 (2 x 6 tiles: 12 accumulators + 3 loads in
   /// 16 SSE registers), chunks of even size so that no short tile waits on its adder's latency;
   /// an odd n ends with a 3 x 3 tile.
+  /// `ahead`: the next block's rows, prefetched a line per packet of rows (PrefetchStream).
   template <bool Weighted, typename Ld>
   static void lower(const Scalar* z, Ld ld, const Scalar* om, Eigen::Index len, Eigen::Index n, Scalar* g,
-                    Eigen::Index ldg) {
-    if (n == 1) return tile<1, 1, Weighted>(z, ld, om, len, 0, 0, g, ldg);
+                    Eigen::Index ldg, PrefetchStream& ahead) {
+    if (n == 1) return tile<1, 1, Weighted>(z, ld, om, len, 0, 0, g, ldg, ahead);
     Eigen::Index j = 0;
     for (; n - j > 3 || n - j == 2; j += 2) {
       const Eigen::Index rest = n - j, chunks = (rest + 5) / 6;
       for (Eigen::Index c = 0, i = j; c < chunks; ++c) {
         const Eigen::Index len_c = (rest - (i - j) + (chunks - c) - 1) / (chunks - c);
         switch (len_c) {
-          case 1: tile<2, 1, Weighted>(z, ld, om, len, j, i, g, ldg); break;
-          case 2: tile<2, 2, Weighted>(z, ld, om, len, j, i, g, ldg); break;
-          case 3: tile<2, 3, Weighted>(z, ld, om, len, j, i, g, ldg); break;
-          case 4: tile<2, 4, Weighted>(z, ld, om, len, j, i, g, ldg); break;
-          case 5: tile<2, 5, Weighted>(z, ld, om, len, j, i, g, ldg); break;
-          default: tile<2, 6, Weighted>(z, ld, om, len, j, i, g, ldg); break;
+          case 1: tile<2, 1, Weighted>(z, ld, om, len, j, i, g, ldg, ahead); break;
+          case 2: tile<2, 2, Weighted>(z, ld, om, len, j, i, g, ldg, ahead); break;
+          case 3: tile<2, 3, Weighted>(z, ld, om, len, j, i, g, ldg, ahead); break;
+          case 4: tile<2, 4, Weighted>(z, ld, om, len, j, i, g, ldg, ahead); break;
+          case 5: tile<2, 5, Weighted>(z, ld, om, len, j, i, g, ldg, ahead); break;
+          default: tile<2, 6, Weighted>(z, ld, om, len, j, i, g, ldg, ahead); break;
         }
         i += len_c;
       }
     }
-    if (n - j == 3) tile<3, 3, Weighted>(z, ld, om, len, j, j, g, ldg);
+    if (n - j == 3) tile<3, 3, Weighted>(z, ld, om, len, j, j, g, ldg, ahead);
   }
 
   /// out(j) = sum of column j over the first `len` rows (a multiple of the packet size), four
@@ -103,16 +104,17 @@ struct GramKernel {
   /// rows i0..i0+MR-1 (its entries broadcast) against NP packets of its columns (the outer
   /// products of Goto & van de Geijn 2008, here one row of the block at a time), so no transpose
   /// and no reduction across lanes. Only the packets that reach the diagonal are formed:
-  /// about (n + W/2) n / 2 multiply-adds per row for packet width W.
+  /// about (n + W/2) n / 2 multiply-adds per row for packet width W. `ahead`: the next block's
+  /// rows, prefetched a line per row of every tile (PrefetchStream).
   template <bool Weighted>
   static void rowLower(const Scalar* z, Eigen::Index S, const Scalar* om, Eigen::Index m, Eigen::Index n, Scalar* g,
-                       Eigen::Index ldg) {
+                       Eigen::Index ldg, PrefetchStream& ahead) {
     for (Eigen::Index i0 = 0; i0 < n; i0 += kRowTile) {
       const int mr = static_cast<int>(n - i0 < kRowTile ? n - i0 : kRowTile);
       const Eigen::Index reach = (i0 + mr - 1) / kWidth + 1;  // packets up to the diagonal
       for (Eigen::Index p0 = 0; p0 < reach; p0 += kRowPackets) {
         const int np = static_cast<int>(reach - p0 < kRowPackets ? reach - p0 : kRowPackets);
-        rowTileRows<kRowTile, Weighted>(mr, np, z, S, om, m, i0, p0, g, ldg);
+        rowTileRows<kRowTile, Weighted>(mr, np, z, S, om, m, i0, p0, g, ldg, ahead);
       }
     }
   }
@@ -145,20 +147,20 @@ struct GramKernel {
 
   template <int MR, bool Weighted>
   static void rowTileRows(int mr, int np, const Scalar* z, Eigen::Index S, const Scalar* om, Eigen::Index m,
-                          Eigen::Index i0, Eigen::Index p0, Scalar* g, Eigen::Index ldg) {
+                          Eigen::Index i0, Eigen::Index p0, Scalar* g, Eigen::Index ldg, PrefetchStream& ahead) {
     if (mr == MR) {
       switch (np) {
-        case 1: return rowTile<MR, 1, Weighted>(z, S, om, m, i0, p0, g, ldg);
-        case 2: return rowTile<MR, 2, Weighted>(z, S, om, m, i0, p0, g, ldg);
-        default: return rowTile<MR, 3, Weighted>(z, S, om, m, i0, p0, g, ldg);
+        case 1: return rowTile<MR, 1, Weighted>(z, S, om, m, i0, p0, g, ldg, ahead);
+        case 2: return rowTile<MR, 2, Weighted>(z, S, om, m, i0, p0, g, ldg, ahead);
+        default: return rowTile<MR, 3, Weighted>(z, S, om, m, i0, p0, g, ldg, ahead);
       }
     }
-    if constexpr (MR > 1) rowTileRows<MR - 1, Weighted>(mr, np, z, S, om, m, i0, p0, g, ldg);
+    if constexpr (MR > 1) rowTileRows<MR - 1, Weighted>(mr, np, z, S, om, m, i0, p0, g, ldg, ahead);
   }
 
   template <int MR, int NP, bool Weighted>
   static void rowTile(const Scalar* z, Eigen::Index S, const Scalar* om, Eigen::Index m, Eigen::Index i0,
-                      Eigen::Index p0, Scalar* g, Eigen::Index ldg) {
+                      Eigen::Index p0, Scalar* g, Eigen::Index ldg, PrefetchStream& ahead) {
     using namespace Eigen::internal;
     // U sets of accumulators over alternate rows: a small tile (the y row's) would otherwise
     // wait on the adder's latency at every row.
@@ -168,6 +170,7 @@ struct GramKernel {
       for (int a = 0; a < MR; ++a)
         for (int q = 0; q < NP; ++q) acc[u][a][q] = pset1<Packet>(Scalar(0));
     const auto step = [&](int u, const Scalar* zr, Eigen::Index r) {
+      ahead.step();
       Packet b[NP];
       for (int q = 0; q < NP; ++q) b[q] = ploadu<Packet>(zr + (p0 + q) * kWidth);
       if constexpr (Weighted) {
@@ -230,7 +233,7 @@ struct GramKernel {
 
   template <int MR, int NR, bool Weighted, typename Ld>
   static void tile(const Scalar* z, Ld ld, const Scalar* om, Eigen::Index len, Eigen::Index j0,
-                   Eigen::Index i0, Scalar* g, Eigen::Index ldg) {
+                   Eigen::Index i0, Scalar* g, Eigen::Index ldg, PrefetchStream& ahead) {
     using namespace Eigen::internal;
     Packet acc[MR][NR];
     for (int m = 0; m < MR; ++m)
@@ -238,6 +241,7 @@ struct GramKernel {
     const Scalar* a0 = z + j0 * ld;
     const Scalar* b0 = z + i0 * ld;
     for (Eigen::Index r = 0; r < len; r += kWidth) {
+      ahead.step();
       Packet a[MR], b[NR];
       for (int m = 0; m < MR; ++m) a[m] = ploadu<Packet>(a0 + m * ld + r);
       if constexpr (Weighted) {
@@ -306,6 +310,7 @@ class GramBlock {
     m_mean.setZero();
     m_diff.setZero();
     m_g.setZero();
+    m_ahead = PrefetchStream();
   }
 
   /// Copies the next block of rows with nonzero weight from row `i` on (advancing `i` past every
@@ -342,10 +347,13 @@ class GramBlock {
     }
   }
 
-  /// Prefetches the block that `gather` would copy from row `i` on (see prefetchRows).
+  /// Prefetches the block that `gather` would copy from row `i` on: y's entries now, X's rows
+  /// spread over the next fold (PrefetchStream).
   template <typename XD, typename YD>
-  void prefetch(const Eigen::MatrixBase<XD>& X, const Eigen::MatrixBase<YD>& y, Eigen::Index i) const {
-    prefetchRows<Scalar>(X, y, i, rowForm<XD>() ? rowCapacity() : m_z.rows() - kPad);
+  void prefetch(const Eigen::MatrixBase<XD>& X, const Eigen::MatrixBase<YD>& y, Eigen::Index i) {
+    const Eigen::Index m = rowForm<XD>() ? rowCapacity() : m_z.rows() - kPad;
+    m_ahead = aheadRows<Scalar>(X, i, m);
+    prefetchEntries<Scalar>(y, i, m);
   }
 
   /// After fold: false if the last block had a NaN or Inf (or squares that overflow): its
@@ -401,6 +409,7 @@ class GramBlock {
     const Scalar c = centering.mergeBlock(p, p * p, wB, m_mean, m_g(n - 1, n - 1), f, f2,
                                           static_cast<std::uint64_t>(nb), mode, m_diff);
     combine(gram, p, c, m_diff, m_g);
+    m_ahead = PrefetchStream();  // what the fold did not ask for, the copy will
     return p;
   }
 
@@ -451,9 +460,9 @@ class GramBlock {
       m_mean.setZero();
     }
     if (unit) {
-      Kernel::template rowLower<false>(z, S, nullptr, nb, n, m_g.data(), n);
+      Kernel::template rowLower<false>(z, S, nullptr, nb, n, m_g.data(), n, m_ahead);
     } else {
-      Kernel::template rowLower<true>(z, S, om, nb, n, m_g.data(), n);
+      Kernel::template rowLower<true>(z, S, om, nb, n, m_g.data(), n, m_ahead);
     }
   }
 
@@ -479,9 +488,9 @@ class GramBlock {
     }
     Scalar* const g = m_g.data();
     if (unit) {
-      GramKernel<Scalar>::template lower<false>(m_z.data(), stride(), nullptr, len, n, g, n);
+      GramKernel<Scalar>::template lower<false>(m_z.data(), stride(), nullptr, len, n, g, n, m_ahead);
     } else {
-      GramKernel<Scalar>::template lower<true>(m_z.data(), stride(), m_omega.data(), len, n, g, n);
+      GramKernel<Scalar>::template lower<true>(m_z.data(), stride(), m_omega.data(), len, n, g, n, m_ahead);
     }
   }
 
@@ -499,6 +508,7 @@ class GramBlock {
   Weights m_omega;
   Vector1 m_mean, m_diff;
   Matrix1 m_g;
+  PrefetchStream m_ahead;  // the next block's rows (prefetch), asked for during this fold
 };
 
 }  // namespace rowfold::detail
