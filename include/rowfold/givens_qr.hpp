@@ -321,14 +321,15 @@ class GivensQr : public EstimatorBase<GivensQr<Scalar_, K_, MaxK_>, Scalar_, K_,
           m_wide.topLeftCorner(nb, n) = root.asDiagonal() * z.topRows(nb);
         m_wide.row(nb).head(n) = extra * m_block.diff().transpose();
         detail::foldRowsHouseholder(m_factor, m_wide.data(), extra > Scalar(0) ? nb + 1 : nb, m_wide.cols(),
-                                    m_wide.bottomRows(kPanelRows).data());  // its panel scratch
+                                    m_wide.bottomRows(kPanelRows).data(), m_block.ahead());  // its panel scratch
         return;
       }
     }
     if (!mg.unit)
       for (Eigen::Index j = 0; j < n; ++j) z.col(j).head(nb).array() *= root.array();
     if (extra > Scalar(0)) m_x.head(n) = extra * m_block.diff();
-    detail::foldBlockHouseholder(m_factor, z.data(), nb, z.rows(), extra > Scalar(0) ? m_x.data() : nullptr);
+    detail::foldBlockHouseholder(m_factor, z.data(), nb, z.rows(), extra > Scalar(0) ? m_x.data() : nullptr,
+                                 m_block.ahead());
   }
 
   /// Folds the centered row d with weight delta (Gentleman 1973; see the class comment).

@@ -10,6 +10,7 @@
 #include <limits>
 
 #include "rowfold/detail/givens.hpp"
+#include "rowfold/detail/prefetch.hpp"
 
 namespace rowfold::detail {
 
@@ -135,12 +136,14 @@ void reflectColumns(FM& F, Scalar* B, Eigen::Index m, Eigen::Index ld, Scalar* e
 /// the diagonal, and the column's entries of B and e; a zero column of B and e is the identity
 /// (an empty column stays as it is). The inner loops run down the contiguous columns of B, up to
 /// four trailing columns at a time (one pass for their inner products, one for their updates).
+/// `ahead` (the next block's rows) is asked for in equal shares, one per column.
 /// Cost about 2 m n^2 flops; never allocates.
 template <typename Scalar, typename FM>
-void foldBlockHouseholder(FM& F, Scalar* B, Eigen::Index m, Eigen::Index ld, Scalar* e) {
+void foldBlockHouseholder(FM& F, Scalar* B, Eigen::Index m, Eigen::Index ld, Scalar* e, PrefetchStream& ahead) {
   using Index = Eigen::Index;
   const Index n = F.cols();
   for (Index j = 0; j < n; ++j) {
+    ahead.share(n - j);
     Scalar* x = B + j * ld;
     Scalar xe = e != nullptr ? e[j] : Scalar(0);
     Scalar sigma;
@@ -254,9 +257,11 @@ void panelUpdates(Scalar* __restrict B, Eigen::Index ld, Eigen::Index m, const S
 /// Each element of the block is loaded and stored once per panel instead of once per reflector.
 /// The trailing passes run in whole packets, from the packet boundary at or below the first
 /// trailing column (w is zeroed on the columns before it, so the stale panel columns of B stay
-/// as they are) to ld. Cost about 2 m n^2 flops; never allocates.
+/// as they are) to ld. `ahead` (the next block's rows) is asked for in equal shares, one per
+/// panel. Cost about 2 m n^2 flops; never allocates.
 template <typename Scalar, typename FM>
-void foldRowsHouseholder(FM& F, Scalar* __restrict B, Eigen::Index m, Eigen::Index ld, Scalar* __restrict S) {
+void foldRowsHouseholder(FM& F, Scalar* __restrict B, Eigen::Index m, Eigen::Index ld, Scalar* __restrict S,
+                         PrefetchStream& ahead) {
   using namespace Eigen::internal;
   using Index = Eigen::Index;
   using Packet = typename packet_traits<Scalar>::type;
@@ -270,6 +275,7 @@ void foldRowsHouseholder(FM& F, Scalar* __restrict B, Eigen::Index m, Eigen::Ind
   Scalar px[P * M];               // the panel's columns, column q at px + q M
   EIGEN_ALIGN_MAX Scalar xb[kPreBroadcast ? P * M * W : 1];  // px, each entry in a whole packet
   for (Index j0 = 0; j0 < n; j0 += P) {
+    ahead.share((n - j0 + P - 1) / P);
     const Index pb = n - j0 < P ? n - j0 : P;  // reflectors in this panel
     Scalar v0[P] = {}, tau[P] = {};            // tau 0: the identity
     for (Index r = 0; r < m; ++r)

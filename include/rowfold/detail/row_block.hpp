@@ -10,6 +10,7 @@
 
 #include "rowfold/centering.hpp"
 #include "rowfold/detail/dims.hpp"
+#include "rowfold/detail/prefetch.hpp"
 #include "rowfold/detail/short_dot.hpp"
 #include "rowfold/options.hpp"
 
@@ -46,68 +47,6 @@ void copyRows(const Eigen::MatrixBase<XD>& X, const Eigen::MatrixBase<YD>& y, Ei
     for (Eigen::Index j = 0; j < kk; ++j) z[j * ld + r] = X(i + r, j);
     z[kk * ld + r] = Scalar(y(i + r));
   }
-}
-
-/// A range of memory prefetched one cache line per step(). GramKernel's loops call step() once
-/// per row (row form) or per packet of rows (column form), so the prefetches of the next block
-/// are spread over the arithmetic of this one. Issued all at once before the fold, they bought
-/// nothing: NormalEquations::addRows from DRAM took the time it took with no prefetch at all,
-/// the stream and the arithmetic taking turns (K = 16, native, 22 ms per 10^6 rows; spread,
-/// 18 ms). Lines left when the fold ends are not asked for (the copy finds them).
-struct PrefetchStream {
-  const char* next = nullptr;
-  const char* end = nullptr;
-  void step() {
-#if defined(__GNUC__)
-    if (next < end) {
-      __builtin_prefetch(next, 0, 3);
-      next += 64;
-    }
-#endif
-  }
-  /// Every line left, now.
-  void finish() {
-    while (next < end) step();
-  }
-};
-
-/// Rows [i, i + m) of a row-major X as a PrefetchStream; an empty one for other layouts (and
-/// for compilers without __builtin_prefetch, where step() does nothing).
-template <typename Scalar, typename XD>
-PrefetchStream aheadRows(const Eigen::MatrixBase<XD>& X, Eigen::Index i, Eigen::Index m) {
-  PrefetchStream s;
-  if (m > X.rows() - i) m = X.rows() - i;
-  if constexpr (bool(XD::Flags & Eigen::DirectAccessBit) && bool(XD::IsRowMajor) &&
-                std::is_same<typename XD::Scalar, Scalar>::value) {
-    if (m > 0) {
-      const Scalar* p = X.derived().data() + i * X.derived().outerStride();
-      s.next = reinterpret_cast<const char*>(p);
-      s.end = reinterpret_cast<const char*>(p + m * X.derived().outerStride());
-    }
-  }
-  return s;
-}
-
-/// Asks for entries [i, i + m) of a contiguous y at once (it is a small part of a block).
-template <typename Scalar, typename YD>
-void prefetchEntries(const Eigen::MatrixBase<YD>& y, Eigen::Index i, Eigen::Index m) {
-  if (m > y.size() - i) m = y.size() - i;
-  if constexpr (bool(YD::Flags & Eigen::DirectAccessBit) && std::is_same<typename YD::Scalar, Scalar>::value) {
-    if (m > 0 && y.derived().innerStride() == 1) {
-      const Scalar* q = y.derived().data() + i;
-      PrefetchStream s{reinterpret_cast<const char*>(q), reinterpret_cast<const char*>(q + m)};
-      s.finish();
-    }
-  }
-}
-
-/// Asks for rows [i, i + m) of a row-major X and of y at once, ahead of their copy, so that the
-/// next block streams in while this one is folded (RowBlock); a no-op for other layouts and
-/// compilers.
-template <typename Scalar, typename XD, typename YD>
-void prefetchRows(const Eigen::MatrixBase<XD>& X, const Eigen::MatrixBase<YD>& y, Eigen::Index i, Eigen::Index m) {
-  aheadRows<Scalar>(X, i, m).finish();
-  prefetchEntries<Scalar>(y, i, m);
 }
 
 /// Scratch for one block of rows [x y] (column-major, so each column of the block is
@@ -172,11 +111,15 @@ class RowBlock {
     return gatherWeighted(X, y, *w, i, cap, m_z, m_omega);
   }
 
-  /// Prefetches the block that `gather` would copy from row `i` on (see prefetchRows).
+  /// Prefetches the block that `gather` would copy from row `i` on: y's entries now, X's rows
+  /// spread over the next fold (ahead(), PrefetchStream).
   template <typename XD, typename YD>
-  void prefetch(const Eigen::MatrixBase<XD>& X, const Eigen::MatrixBase<YD>& y, Eigen::Index i) const {
-    prefetchRows<Scalar>(X, y, i, m_z.rows());
+  void prefetch(const Eigen::MatrixBase<XD>& X, const Eigen::MatrixBase<YD>& y, Eigen::Index i) {
+    m_ahead = aheadRows<Scalar>(X, i, m_z.rows());
+    prefetchEntries<Scalar>(y, i, m_z.rows());
   }
+  /// The next block's rows, for the fold of this one to ask for (what it leaves, the copy finds).
+  PrefetchStream& ahead() { return m_ahead; }
 
   /// Weights the nb gathered rows by lambda^age (age nb-1-r for row r at the end of the block),
   /// centers them on their weighted means (`Intercept::fit`) and merges the block's weight sums
@@ -223,6 +166,7 @@ class RowBlock {
   Block m_z;
   Weights m_omega, m_tmp;
   Vector1 m_mean, m_diff;
+  PrefetchStream m_ahead;  // the next block's rows (prefetch), asked for during this fold
 };
 
 }  // namespace rowfold::detail
