@@ -284,11 +284,12 @@ class GivensQr : public EstimatorBase<GivensQr<Scalar_, K_, MaxK_>, Scalar_, K_,
     bool formed = false;
     for (Eigen::Index i = 0, i0 = 0; i < X.rows(); i0 = i) {
       const Eigen::Index nb = m_block.gather(X, y, w, i);
-      if (w == nullptr) m_block.prefetch(X, y, i);  // the next block, while this one is folded
+      detail::PrefetchStream ahead;  // the next block, asked for while this one is folded
+      if (w == nullptr) ahead = m_block.prefetch(X, y, i);
       if (nb > 0) {
         if (!formed) formFactor();
         formed = true;
-        foldBlock(nb);
+        foldBlock(nb, ahead);
       }
       if (w == nullptr ? !Base::allFiniteFast(m_factor.diagonal()) : !Base::cleanRows(X, y, w, i0, i)) {
         const Status s = this->firstReject(X, y, w, i0, i);
@@ -305,7 +306,8 @@ class GivensQr : public EstimatorBase<GivensQr<Scalar_, K_, MaxK_>, Scalar_, K_,
   /// LeVeque 1983; NUMERICS §5 "Centered merge") are folded together by one Householder QR of
   /// [sqrt(lambda^b) F; diag(sqrt(omega)) Z; sqrt(W_A W_B / W') diff'] (the stacked-triangle
   /// step of TSQR: detail::foldBlockHouseholder, or detail::foldRowsHouseholder for wide rows).
-  void foldBlock(Eigen::Index nb) {
+  /// `ahead`: the next block's rows, asked for during the fold (empty for none).
+  void foldBlock(Eigen::Index nb, detail::PrefetchStream& ahead) {
     const Eigen::Index n = m_state.rows();
     const auto mg = m_block.prepare(nb, this->lambda(), this->interceptMode(), this->centeringState());
     if (mg.ageing != Scalar(1)) m_factor.template triangularView<Eigen::Upper>() *= std::sqrt(mg.ageing);
@@ -321,15 +323,14 @@ class GivensQr : public EstimatorBase<GivensQr<Scalar_, K_, MaxK_>, Scalar_, K_,
           m_wide.topLeftCorner(nb, n) = root.asDiagonal() * z.topRows(nb);
         m_wide.row(nb).head(n) = extra * m_block.diff().transpose();
         detail::foldRowsHouseholder(m_factor, m_wide.data(), extra > Scalar(0) ? nb + 1 : nb, m_wide.cols(),
-                                    m_wide.bottomRows(kPanelRows).data(), m_block.ahead());  // its panel scratch
+                                    m_wide.bottomRows(kPanelRows).data(), ahead);  // its panel scratch
         return;
       }
     }
     if (!mg.unit)
       for (Eigen::Index j = 0; j < n; ++j) z.col(j).head(nb).array() *= root.array();
     if (extra > Scalar(0)) m_x.head(n) = extra * m_block.diff();
-    detail::foldBlockHouseholder(m_factor, z.data(), nb, z.rows(), extra > Scalar(0) ? m_x.data() : nullptr,
-                                 m_block.ahead());
+    detail::foldBlockHouseholder(m_factor, z.data(), nb, z.rows(), extra > Scalar(0) ? m_x.data() : nullptr, ahead);
   }
 
   /// Folds the centered row d with weight delta (Gentleman 1973; see the class comment).

@@ -169,7 +169,8 @@ class NormalEquations : public EstimatorBase<NormalEquations<Scalar_, K_, MaxK_>
     Scalar age = Scalar(1);
     for (Eigen::Index i = 0, i0 = 0; i < X.rows(); i0 = i) {
       const Eigen::Index nb = m_block.gather(X, y, w, i);
-      if (w == nullptr) m_block.prefetch(X, y, i);  // the next block, while this one is folded
+      detail::PrefetchStream ahead;  // the next block, asked for while this one is folded
+      if (w == nullptr) ahead = m_block.prefetch(X, y, i);
       // The block is folded into the accumulator first and checked afterwards: with unit
       // weights a NaN or Inf shows in the block's co-moment diagonal (no second look at the
       // rows); with weights the raw rows are checked (zero-weight rows are not gathered but
@@ -177,7 +178,7 @@ class NormalEquations : public EstimatorBase<NormalEquations<Scalar_, K_, MaxK_>
       // the Status (squares that merely overflow find no bad row: folded, as row by row).
       if (nb > 0)
         age *= m_block.fold(nb, w != nullptr, lambda, mode, m_callCentering, m_call,
-                            m_block.template rowForm<XD>());
+                            m_block.template rowForm<XD>(), ahead);
       if (w == nullptr ? !m_block.finite() : !Base::cleanRows(X, y, w, i0, i)) {
         const Status s = this->firstReject(X, y, w, i0, i);  // this block only: later ones are checked in turn
         if (s != Status::ok) {

@@ -310,7 +310,6 @@ class GramBlock {
     m_mean.setZero();
     m_diff.setZero();
     m_g.setZero();
-    m_ahead = PrefetchStream();
   }
 
   /// Copies the next block of rows with nonzero weight from row `i` on (advancing `i` past every
@@ -347,13 +346,13 @@ class GramBlock {
     }
   }
 
-  /// Prefetches the block that `gather` would copy from row `i` on: y's entries now, X's rows
-  /// spread over the next fold (PrefetchStream).
+  /// The block that `gather` would copy from row `i` on: prefetches its y entries now and
+  /// returns its rows of X, for `fold` to ask for while it folds this block (PrefetchStream).
   template <typename XD, typename YD>
-  void prefetch(const Eigen::MatrixBase<XD>& X, const Eigen::MatrixBase<YD>& y, Eigen::Index i) {
+  PrefetchStream prefetch(const Eigen::MatrixBase<XD>& X, const Eigen::MatrixBase<YD>& y, Eigen::Index i) const {
     const Eigen::Index m = rowForm<XD>() ? rowCapacity() : m_z.rows() - kPad;
-    m_ahead = aheadRows<Scalar>(X, i, m);
     prefetchEntries<Scalar>(y, i, m);
+    return aheadRows<Scalar>(X, i, m);
   }
 
   /// After fold: false if the last block had a NaN or Inf (or squares that overflow): its
@@ -384,9 +383,9 @@ class GramBlock {
   /// centered on the block's weighted means, G <- lambda^nb G + c diff diff' + Z' diag(omega) Z.
   /// Returns lambda^nb.
   /// `rows`: rowForm<XD>() of the X that `gather` copied the block from (no default: the two
-  /// must agree).
+  /// must agree). `ahead`: the next block's rows (prefetch; empty for none).
   Scalar fold(Eigen::Index nb, bool weighted, Scalar lambda, Intercept mode, Centering<Scalar, K, MaxK>& centering,
-              Matrix1& gram, bool rows) {
+              Matrix1& gram, bool rows, PrefetchStream& ahead) {
     const Eigen::Index n = m_z.cols();
     Scalar p = Scalar(1), f = Scalar(nb), f2 = Scalar(nb);
     const bool unit = !weighted && lambda == Scalar(1);
@@ -402,14 +401,13 @@ class GramBlock {
     }
     const Scalar wB = unit ? Scalar(nb) : m_omega.head(nb).sum();  // the block's weight
     if (rows) {
-      foldRowForm(nb, unit, wB, mode);
+      foldRowForm(nb, unit, wB, mode, ahead);
     } else {
-      foldColumnForm(nb, unit, wB, mode);
+      foldColumnForm(nb, unit, wB, mode, ahead);
     }
     const Scalar c = centering.mergeBlock(p, p * p, wB, m_mean, m_g(n - 1, n - 1), f, f2,
                                           static_cast<std::uint64_t>(nb), mode, m_diff);
     combine(gram, p, c, m_diff, m_g);
-    m_ahead = PrefetchStream();  // what the fold did not ask for, the copy will
     return p;
   }
 
@@ -441,7 +439,7 @@ class GramBlock {
 
   /// Row form: centers the nb rows (weight wB in all) on their weighted means (m_mean) and
   /// forms their co-moments in m_g (lower triangle).
-  void foldRowForm(Eigen::Index nb, bool unit, Scalar wB, Intercept mode) {
+  void foldRowForm(Eigen::Index nb, bool unit, Scalar wB, Intercept mode, PrefetchStream& ahead) {
     using Kernel = GramKernel<Scalar>;
     const Eigen::Index n = m_z.cols(), S = rowStride();
     Scalar* const z = m_z.data();
@@ -460,14 +458,14 @@ class GramBlock {
       m_mean.setZero();
     }
     if (unit) {
-      Kernel::template rowLower<false>(z, S, nullptr, nb, n, m_g.data(), n, m_ahead);
+      Kernel::template rowLower<false>(z, S, nullptr, nb, n, m_g.data(), n, ahead);
     } else {
-      Kernel::template rowLower<true>(z, S, om, nb, n, m_g.data(), n, m_ahead);
+      Kernel::template rowLower<true>(z, S, om, nb, n, m_g.data(), n, ahead);
     }
   }
 
   /// Column form: the same from the column-major block.
-  void foldColumnForm(Eigen::Index nb, bool unit, Scalar wB, Intercept mode) {
+  void foldColumnForm(Eigen::Index nb, bool unit, Scalar wB, Intercept mode, PrefetchStream& ahead) {
     const Eigen::Index n = m_z.cols();
     // Zero padding up to the packet size: the kernels run whole packets.
     const Eigen::Index len = (nb + kWidth - 1) / kWidth * kWidth;
@@ -488,9 +486,9 @@ class GramBlock {
     }
     Scalar* const g = m_g.data();
     if (unit) {
-      GramKernel<Scalar>::template lower<false>(m_z.data(), stride(), nullptr, len, n, g, n, m_ahead);
+      GramKernel<Scalar>::template lower<false>(m_z.data(), stride(), nullptr, len, n, g, n, ahead);
     } else {
-      GramKernel<Scalar>::template lower<true>(m_z.data(), stride(), m_omega.data(), len, n, g, n, m_ahead);
+      GramKernel<Scalar>::template lower<true>(m_z.data(), stride(), m_omega.data(), len, n, g, n, ahead);
     }
   }
 
@@ -508,7 +506,6 @@ class GramBlock {
   Weights m_omega;
   Vector1 m_mean, m_diff;
   Matrix1 m_g;
-  PrefetchStream m_ahead;  // the next block's rows (prefetch), asked for during this fold
 };
 
 }  // namespace rowfold::detail

@@ -15,31 +15,57 @@ namespace rowfold::detail {
 /// and the arithmetic taking turns. Spread (native, 10^6 rows from DRAM, double): NormalEquations
 /// K = 16 23 -> 18 ms, GivensQr K = 8 19 -> 15 ms, K = 16 47 -> 37 ms. Lines left when the fold
 /// ends are not asked for (the copy finds them).
+#if defined(__GNUC__) && !(defined(__ARM_ARCH_PROFILE) && __ARM_ARCH_PROFILE == 'M')
+#define ROWFOLD_DETAIL_PREFETCH 1
+#else
+#define ROWFOLD_DETAIL_PREFETCH 0
+#endif
+
 struct PrefetchStream {
+  /// Whether anything is asked for: with GCC and Clang (__builtin_prefetch), except on M-profile
+  /// ARM (Cortex-M), whose rows come from on-chip memory with no data cache, or a small one, to
+  /// fill; there the steps would only cost flash (NormalEquations, Cortex-M4F probe, K = 4:
+  /// 1.2 KB of text) and are compiled out.
+  static constexpr bool enabled = ROWFOLD_DETAIL_PREFETCH != 0;
+
   const char* next = nullptr;
   const char* end = nullptr;
   void step() {
-#if defined(__GNUC__)
-    if (next < end) {
-      __builtin_prefetch(next, 0, 3);
-      next += 64;
+    if constexpr (enabled) {
+      if (next < end) {
+        touch(next);
+        next += 64;
+      }
     }
-#endif
   }
   /// The next of `parts` equal shares of the lines left (all of them for parts <= 1), for a
   /// loop whose steps are few and long.
   void share(Eigen::Index parts) {
-    const Eigen::Index left = (end - next + 63) / 64;
-    for (Eigen::Index k = parts > 1 ? (left + parts - 1) / parts : left; k > 0; --k) step();
+    if constexpr (enabled) {
+      const Eigen::Index left = (end - next + 63) / 64;
+      for (Eigen::Index k = parts > 1 ? (left + parts - 1) / parts : left; k > 0; --k) step();
+    }
   }
   /// Every line left, now.
   void finish() {
-    while (next < end) step();
+    if constexpr (enabled) {
+      while (next < end) step();
+    }
+  }
+
+ private:
+  static void touch(const char* p) {
+#if ROWFOLD_DETAIL_PREFETCH
+    __builtin_prefetch(p, 0, 3);
+#else
+    (void)p;
+#endif
   }
 };
 
-/// Rows [i, i + m) of a row-major X as a PrefetchStream; an empty one for other layouts (and
-/// for compilers without __builtin_prefetch, where step() does nothing).
+#undef ROWFOLD_DETAIL_PREFETCH
+
+/// Rows [i, i + m) of a row-major X as a PrefetchStream; an empty one for other layouts.
 template <typename Scalar, typename XD>
 PrefetchStream aheadRows(const Eigen::MatrixBase<XD>& X, Eigen::Index i, Eigen::Index m) {
   PrefetchStream s;

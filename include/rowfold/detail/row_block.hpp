@@ -111,15 +111,13 @@ class RowBlock {
     return gatherWeighted(X, y, *w, i, cap, m_z, m_omega);
   }
 
-  /// Prefetches the block that `gather` would copy from row `i` on: y's entries now, X's rows
-  /// spread over the next fold (ahead(), PrefetchStream).
+  /// The block that `gather` would copy from row `i` on: prefetches its y entries now and
+  /// returns its rows of X, for the fold of this block to ask for (PrefetchStream).
   template <typename XD, typename YD>
-  void prefetch(const Eigen::MatrixBase<XD>& X, const Eigen::MatrixBase<YD>& y, Eigen::Index i) {
-    m_ahead = aheadRows<Scalar>(X, i, m_z.rows());
+  PrefetchStream prefetch(const Eigen::MatrixBase<XD>& X, const Eigen::MatrixBase<YD>& y, Eigen::Index i) const {
     prefetchEntries<Scalar>(y, i, m_z.rows());
+    return aheadRows<Scalar>(X, i, m_z.rows());
   }
-  /// The next block's rows, for the fold of this one to ask for (what it leaves, the copy finds).
-  PrefetchStream& ahead() { return m_ahead; }
 
   /// Weights the nb gathered rows by lambda^age (age nb-1-r for row r at the end of the block),
   /// centers them on their weighted means (`Intercept::fit`) and merges the block's weight sums
@@ -166,7 +164,6 @@ class RowBlock {
   Block m_z;
   Weights m_omega, m_tmp;
   Vector1 m_mean, m_diff;
-  PrefetchStream m_ahead;  // the next block's rows (prefetch), asked for during this fold
 };
 
 }  // namespace rowfold::detail
