@@ -3,7 +3,7 @@
 #pragma once
 
 #include <Eigen/Core>
-#include <cstdint>
+#include <cstddef>
 #include <type_traits>
 
 namespace rowfold::detail {
@@ -28,20 +28,24 @@ struct PrefetchStream {
   /// fill; there every step() and share() is empty.
   static constexpr bool enabled = ROWFOLD_DETAIL_PREFETCH != 0;
 
-  /// The range [next, end) as addresses (integers: stepping past the end forms no pointer).
-  std::uintptr_t next = 0;
-  std::uintptr_t end = 0;
+  /// The next line to ask for and how many are left (next moves only while one is left, so it
+  /// stays inside the range).
+  const char* next = nullptr;
+  std::size_t left = 0;
 
   PrefetchStream() = default;
-  PrefetchStream(const void* from, const void* to)
-      : next(reinterpret_cast<std::uintptr_t>(from)), end(reinterpret_cast<std::uintptr_t>(to)) {}
+  /// The lines that hold the bytes [from, to).
+  PrefetchStream(const void* from, const void* to) : next(static_cast<const char*>(from)) {
+    const char* const end = static_cast<const char*>(to);
+    if (end > next) left = (static_cast<std::size_t>(end - next) + 63) / 64;
+  }
 
   /// The next line, if any is left.
   void step() {
     if constexpr (enabled) {
-      if (next < end) {
+      if (left > 0) {
         touch(next);
-        next += 64;
+        if (--left > 0) next += 64;
       }
     }
   }
@@ -49,24 +53,23 @@ struct PrefetchStream {
   /// loop whose steps are few and long.
   void share(Eigen::Index parts) {
     if constexpr (enabled) {
-      const std::uintptr_t left = next < end ? (end - next + 63) / 64 : 0;
-      const std::uintptr_t k = parts > 1 ? (left + std::uintptr_t(parts) - 1) / std::uintptr_t(parts) : left;
-      for (std::uintptr_t t = 0; t < k; ++t) step();
+      const std::size_t n = parts > 1 ? static_cast<std::size_t>(parts) : 1;
+      for (std::size_t t = (left + n - 1) / n; t > 0; --t) step();
     }
   }
   /// Every line left, now.
   void finish() {
     if constexpr (enabled) {
-      while (next < end) step();
+      while (left > 0) step();
     }
   }
 
  private:
-  static void touch(std::uintptr_t address) {
+  static void touch(const char* p) {
 #if ROWFOLD_DETAIL_PREFETCH
-    __builtin_prefetch(reinterpret_cast<const void*>(address), 0, 3);
+    __builtin_prefetch(p, 0, 3);
 #else
-    (void)address;
+    (void)p;
 #endif
   }
 };
