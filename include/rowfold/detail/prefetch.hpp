@@ -76,7 +76,9 @@ struct PrefetchStream {
 
 #undef ROWFOLD_DETAIL_PREFETCH
 
-/// Rows [i, i + m) of a row-major X as a PrefetchStream; an empty one for other layouts.
+/// Rows [i, i + m) of a row-major X as a PrefetchStream (from the first row's first entry to the
+/// last row's last one: for a block of a wider matrix, the range ends inside the data); an
+/// empty one for other layouts.
 template <typename Scalar, typename XD>
 PrefetchStream aheadRows(const Eigen::MatrixBase<XD>& X, Eigen::Index i, Eigen::Index m) {
   PrefetchStream s;
@@ -85,7 +87,7 @@ PrefetchStream aheadRows(const Eigen::MatrixBase<XD>& X, Eigen::Index i, Eigen::
                 std::is_same<typename XD::Scalar, Scalar>::value) {
     if (m > 0) {
       const Scalar* p = X.derived().data() + i * X.derived().outerStride();
-      s = PrefetchStream(p, p + m * X.derived().outerStride());
+      s = PrefetchStream(p, p + (m - 1) * X.derived().outerStride() + X.cols());
     }
   }
   return s;
