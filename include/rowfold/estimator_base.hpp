@@ -26,6 +26,12 @@ template <typename D, typename = void>
 struct FusedRows : std::false_type {};
 template <typename D>
 struct FusedRows<D, std::void_t<decltype(D::fusedRows)>> : std::bool_constant<D::fusedRows> {};
+/// Derived::centeringFirst if the estimator declares it, else false (foldRow may read the
+/// centering as it was before the sample).
+template <typename D, typename = void>
+struct CenteringFirst : std::false_type {};
+template <typename D>
+struct CenteringFirst<D, std::void_t<decltype(D::centeringFirst)>> : std::bool_constant<D::centeringFirst> {};
 }  // namespace detail
 
 /// Shared interface of all estimators. The contract, in code:
@@ -47,6 +53,9 @@ struct FusedRows<D, std::void_t<decltype(D::fusedRows)>> : std::bool_constant<D:
 ///   estimator takes one only if its form needs it; the guards pass already scaled pseudo-rows
 ///   with delta = 1). Age by `lambda()`, the step factor (the guards may change it per sample).
 ///   Raw x, y, w are given for estimators that keep raw data;
+/// - optionally `static constexpr bool centeringFirst = true`: foldRow reads nothing of the
+///   centering, so add() may commit the sample's centering step before it (same results, a
+///   shorter chain from one sample to the next);
 /// - optionally `void foldRows(X, y, w)`: fold validated rows (w == nullptr: unit weights) in
 ///   blocks; the default folds them one at a time;
 /// - optionally `static constexpr bool fusedRows = true` with `Status ingestRows(X, y, w)`:
@@ -875,8 +884,16 @@ class EstimatorBase {
   Scalar foldStep(const Eigen::MatrixBase<XD>& x, Scalar y, Scalar w, Scalar lam,
                   const typename Centering<Scalar, K, MaxK>::Step& step) {
     m_step = lam;
-    derived().foldRow(x, y, w, m_row, step.delta);
-    m_centering.commitStep(step, lam, m_fit.intercept, m_row);
+    if constexpr (detail::CenteringFirst<Derived>::value) {
+      // The step commits while d is still in registers: after the estimator's stores a
+      // compiler must read m_row back (they might alias it), and that read sat on the
+      // loop-carried chain of the means.
+      m_centering.commitStep(step, lam, m_fit.intercept, m_row);
+      derived().foldRow(x, y, w, m_row, step.delta);
+    } else {
+      derived().foldRow(x, y, w, m_row, step.delta);
+      m_centering.commitStep(step, lam, m_fit.intercept, m_row);
+    }
     m_step = m_lambda;
     return step.delta;
   }

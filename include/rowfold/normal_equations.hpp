@@ -70,6 +70,7 @@ class NormalEquations : public EstimatorBase<NormalEquations<Scalar_, K_, MaxK_>
   static constexpr bool guardable = true;  ///< the windup guard and outlier gate apply
   static constexpr bool positionalAges = false;  ///< ages live in the state: addDelayed/advance are exact
   static constexpr bool deferredCentering = false;  ///< folds at once (see EstimatorBase::syncCentering)
+  static constexpr bool centeringFirst = true;  ///< foldRow reads no centering (EstimatorBase::foldStep)
   static constexpr bool fusedRows = true;  ///< addRows validates and folds in one pass (ingestRows)
 
   /// Fixed K. status() reports invalid options; see EstimatorBase::status().
