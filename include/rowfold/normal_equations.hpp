@@ -3,6 +3,7 @@
 #pragma once
 
 #include <limits>
+#include <type_traits>
 #include <utility>
 
 #include "rowfold/detail/cholesky.hpp"
@@ -101,8 +102,28 @@ class NormalEquations : public EstimatorBase<NormalEquations<Scalar_, K_, MaxK_>
     v.array(self.m_gram.data(), static_cast<std::size_t>(self.m_gram.size()));
   }
 
-  template <typename XD>
+  // Fixed K <= 4: always inlined into add(). There the call costs as much as the update (the
+  // state's vector registers spilled around it): native bench, double, K = 4 11.5-11.9 ->
+  // 7.7-8.3 ns per sample (bench/README, store-order round), where g++ had declined to inline
+  // it in a large translation unit. At K = 8 the forced inline measured 10-15 % slower; larger K
+  // and runtime K are left to the compiler. Not on Cortex-M: no vector registers to spill there,
+  // and each inlined copy is code (M4F, K = 4: +456 B of text).
+#if defined(__ARM_ARCH_PROFILE) && __ARM_ARCH_PROFILE == 'M'
+  static constexpr bool kInlineFold = false;
+#else
+  static constexpr bool kInlineFold = K_ != Eigen::Dynamic && K_ <= 4;
+#endif
+  template <typename XD, bool I = kInlineFold, std::enable_if_t<I, int> = 0>
+  EIGEN_ALWAYS_INLINE void foldRow(const Eigen::MatrixBase<XD>&, Scalar, Scalar, const Vector1& d, Scalar delta) {
+    foldCentered(d, delta);
+  }
+  template <typename XD, bool I = kInlineFold, std::enable_if_t<!I, int> = 0>
   void foldRow(const Eigen::MatrixBase<XD>&, Scalar, Scalar, const Vector1& d, Scalar delta) {
+    foldCentered(d, delta);
+  }
+
+  /// G <- lambda G + delta d d' (lower triangle).
+  EIGEN_ALWAYS_INLINE void foldCentered(const Vector1& d, Scalar delta) {
     const Scalar lambda = this->lambda();
     // u = sqrt(delta) d, G += u u': the rounding of the symmetric square-root form, which keeps
     // about a digit more than delta d_i d_j on exact-fit data (NIST Wampler1: 7.8 vs 6.5).
