@@ -6,9 +6,11 @@
 #include <cstddef>
 #include <type_traits>
 
+#include "rowfold/detail/target.hpp"
+
 namespace rowfold::detail {
 
-#if defined(__GNUC__) && !(defined(__ARM_ARCH_PROFILE) && __ARM_ARCH_PROFILE == 'M')
+#if defined(__GNUC__)
 #define ROWFOLD_DETAIL_PREFETCH 1
 #else
 #define ROWFOLD_DETAIL_PREFETCH 0
@@ -26,7 +28,7 @@ struct PrefetchStream {
   /// Whether anything is asked for: with GCC and Clang (__builtin_prefetch), except on M-profile
   /// ARM (Cortex-M), whose rows come from on-chip memory with no data cache, or a small one, to
   /// fill; there every step() and share() is empty.
-  static constexpr bool enabled = ROWFOLD_DETAIL_PREFETCH != 0;
+  static constexpr bool enabled = ROWFOLD_DETAIL_PREFETCH != 0 && !kMicrocontroller;
 
   /// The next line to ask for and how many are left (next moves only while one is left, so it
   /// stays inside the range).
