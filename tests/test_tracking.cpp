@@ -315,13 +315,17 @@ TEST_CASE("variable forgetting and the change alarm re-converge faster after a s
 // An inert guard (information gate and floor off; in the second pass also an outlier gate that
 // never fires, so the normalized error and its scale are formed) decides nothing, so the guarded
 // path must fold exactly what the plain path folds: the same bits. This pins the guarded fold's
-// reuse of priorInfo's work (ForgettingRls takes its gain P d from the gate's leverage).
+// reuse of priorInfo's work (ForgettingRls takes its gain P d from the gate's leverage). With a
+// runtime K and x of runtime length, NormalEquations' and GivensQr's plain path is their copy
+// of add compiled for K = 3 (EstimatorBase::addSized), the guarded one the runtime-length path:
+// this also pins that the copy folds the same bits.
 TEST_CASE_TEMPLATE("guards: an inert guard folds bit for bit what the plain path folds", E,
                    rowfold::ForgettingRls<double, 3>, rowfold::ForgettingRls<float, 3>,
                    rowfold::ForgettingRls<double, Eigen::Dynamic>, rowfold::GivensQr<double, 3>,
-                   rowfold::NormalEquations<float, 3>) {
+                   rowfold::NormalEquations<float, 3>, rowfold::NormalEquations<double, Eigen::Dynamic>,
+                   rowfold::GivensQr<float, Eigen::Dynamic>) {
   using S = typename E::Scalar;
-  using V = Eigen::Matrix<S, 3, 1>;
+  using V = typename E::Dims::Vector;  // runtime length for a runtime K
   for (int pass = 0; pass < 2; ++pass) {
     CAPTURE(pass);
     typename E::Options plain;
@@ -339,7 +343,8 @@ TEST_CASE_TEMPLATE("guards: an inert guard folds bit for bit what the plain path
     std::mt19937_64 rng(7);
     std::normal_distribution<double> n01(0, 1);
     for (int i = 0; i < 3000; ++i) {
-      const V x(S(n01(rng)), S(2 + n01(rng)), S(0.5 * n01(rng)));
+      V x(3);
+      x << S(n01(rng)), S(2 + n01(rng)), S(0.5 * n01(rng));
       const S y = S(1.5) * x(0) - x(1) + S(0.25) * x(2) + S(0.1 * n01(rng));
       const S w = S(0.5 + (i % 3));
       REQUIRE(a.add(x, y, w) == Status::ok);

@@ -97,29 +97,33 @@ class Centering {
 
   /// Writes d = [x - xbar, y - ybar] (or [x, y] without intercept) into `row` and returns its
   /// weight delta and the mean step, without changing the state. One division, no square root.
+  /// With a runtime K and a fixed-size x, the loops have x's length (detail::viewSize).
   template <typename XD>
   Step centeredRow(const Eigen::MatrixBase<XD>& x, Scalar y, Scalar w, Scalar lambda, Intercept mode,
                    Vector1& row) const {
+    constexpr int KV = detail::viewSize<K, XD>;
     const Eigen::Index k = m_xbar.size();
     const Scalar aged = lambda * m_weight;
     const Scalar wNew = aged + w;
     if (mode == Intercept::none) {
-      detail::headOf<K>(row, k) = x;
+      detail::headOf<KV>(row, k) = x;
       row(k) = y;
       return Step{w, Scalar(0), wNew};
     }
-    detail::headOf<K>(row, k) = x - m_xbar;
+    detail::headOf<KV>(row, k) = x - detail::sizedAs<KV>(m_xbar);
     row(k) = y - m_ybar;
     // Two independent divisions (not a reciprocal and products): one rounding each, which the
     // cross-product forms notice on exact-fit data (NIST Wampler1).
     return Step{w * (aged / wNew), w / wNew, wNew};
   }
 
-  /// Commits a sample prepared by `centeredRow` (`row` still holds its d).
+  /// Commits a sample prepared by `centeredRow` (`row` still holds its d). KV: the length
+  /// centeredRow used (K, or with a runtime K that of its x).
+  template <int KV = K>
   void commitStep(const Step& st, Scalar lambda, Intercept mode, const Vector1& row) {
     const Eigen::Index k = m_xbar.size();
     if (mode == Intercept::fit) {
-      m_xbar += st.share * detail::headOf<K>(row, k);
+      detail::sizedAs<KV>(m_xbar) += st.share * detail::headOf<KV>(row, k);
       m_ybar += st.share * row(k);
     }
     m_syy = lambda * m_syy + st.delta * row(k) * row(k);

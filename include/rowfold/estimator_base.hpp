@@ -7,11 +7,13 @@
 #include <cstring>
 #include <limits>
 #include <type_traits>
+#include <utility>
 
 #include "rowfold/centering.hpp"
 #include "rowfold/detail/analysis.hpp"
 #include "rowfold/detail/dims.hpp"
 #include "rowfold/detail/guard.hpp"
+#include "rowfold/detail/target.hpp"
 #include "rowfold/detail/workspace.hpp"
 #include "rowfold/options.hpp"
 #include "rowfold/results.hpp"
@@ -32,6 +34,11 @@ template <typename D, typename = void>
 struct CenteringFirst : std::false_type {};
 template <typename D>
 struct CenteringFirst<D, std::void_t<decltype(D::centeringFirst)>> : std::bool_constant<D::centeringFirst> {};
+/// Derived::sizedUpTo if the estimator declares it, else 0 (no per-size copies of add).
+template <typename D, typename = void>
+struct SizedUpTo : std::integral_constant<int, 0> {};
+template <typename D>
+struct SizedUpTo<D, std::void_t<decltype(D::sizedUpTo)>> : std::integral_constant<int, D::sizedUpTo> {};
 }  // namespace detail
 
 /// Shared interface of all estimators. The contract, in code:
@@ -55,7 +62,13 @@ struct CenteringFirst<D, std::void_t<decltype(D::centeringFirst)>> : std::bool_c
 ///   Raw x, y, w are given for estimators that keep raw data;
 /// - optionally `static constexpr bool centeringFirst = true`: foldRow reads nothing of the
 ///   centering, so add() may commit the sample's centering step before it (same results, a
-///   shorter chain from one sample to the next);
+///   shorter chain from one sample to the next). Done where the loops have a compile-time
+///   length (fixed K, or the per-size copies below): with runtime-length loops that order
+///   measured slower (NormalEquations, portable, double, runtime K = 32 / 64: 143-148 / 451-454
+///   ns per sample in the old order, 166-168 / 476-489 in this one);
+/// - optionally `static constexpr int sizedUpTo = N`: with a runtime K <= N, the unguarded
+///   add() runs a copy of its path compiled for that K, handing foldRow x as a fixed-size block
+///   (foldRow reads the length from x's type, detail::viewSize). None on Cortex-M (flash);
 /// - optionally `void foldRows(X, y, w)`: fold validated rows (w == nullptr: unit weights) in
 ///   blocks; the default folds them one at a time;
 /// - optionally `static constexpr bool fusedRows = true` with `Status ingestRows(X, y, w)`:
@@ -184,13 +197,13 @@ class EstimatorBase {
   template <typename XD>
   Status add(const Eigen::MatrixBase<XD>& x, Scalar y, Scalar w) {
     static_assert(std::is_same<typename XD::Scalar, Scalar>::value, "rowfold: x must have the estimator's Scalar");
-    const Status s = check(x, y, w);
-    if (s != Status::ok) return s;
-    if (w == Scalar(0)) return Status::ok;
-    if (derived().room() == 0) return Status::capacity_full;
-    if (m_guarded) return guardedFold(x, y, w);
-    fold(x, y, w, m_lambda);
-    return Status::ok;
+    if constexpr (kSizedUpTo > 0 && XD::SizeAtCompileTime == Eigen::Dynamic) {  // a fixed-size x is sized already
+      if (!m_guarded && x.size() <= kSizedUpTo && x.size() == regressors())
+        return addSized(x, y, w, std::make_integer_sequence<int, kSizedUpTo>{});
+      return addRuntime(x, y, w);
+    } else {
+      return addChecked<true>(x, y, w);
+    }
   }
 
   /// Folds a sample measured `age` steps ago (a lab result that arrives late): it enters with
@@ -857,6 +870,47 @@ class EstimatorBase {
     detail::putField(h + 32, m_fit.vifLimit);
   }
 
+  /// add() after its dispatch. Guarded = false for the per-size copies, which are reached only
+  /// unguarded (so that they do not instantiate the guarded path as well).
+  template <bool Guarded, typename XD>
+  EIGEN_ALWAYS_INLINE Status addChecked(const Eigen::MatrixBase<XD>& x, Scalar y, Scalar w) {
+    const Status s = check(x, y, w);
+    if (s != Status::ok) return s;
+    if (w == Scalar(0)) return Status::ok;
+    if (derived().room() == 0) return Status::capacity_full;
+    if constexpr (Guarded) {
+      if (m_guarded) return guardedFold(x, y, w);
+    }
+    fold(x, y, w, m_lambda);
+    return Status::ok;
+  }
+
+  // Runtime K up to the estimator's sizedUpTo: the unguarded add compiled for each K <= N, x as
+  // a fixed-size block, so that the checks, the centering and the estimator's fold have loops
+  // of compile-time length, as with a fixed K. The same operations in the same order, so the
+  // same results (tests/test_tracking.cpp, "an inert guard"). NormalEquations, native update
+  // bench, double, runtime K = 2 / 4 / 8: 19.0 / 25.4 / 35.0 -> 9.2 / 13.4 / 22.9 ns per
+  // sample (bench/README, per-size round).
+  static constexpr int kSizedUpTo = K == Eigen::Dynamic && !detail::kMicrocontroller ? detail::SizedUpTo<Derived>::value : 0;
+  template <typename XD, int... N>
+  EIGEN_ALWAYS_INLINE Status addSized(const Eigen::MatrixBase<XD>& x, Scalar y, Scalar w, std::integer_sequence<int, N...>) {
+    Status s = Status::ok;  // x.size() is one of N + 1: exactly one copy runs
+    static_cast<void>(((x.size() == N + 1 && (s = addAs<N + 1>(x, y, w), true)) || ...));
+    return s;
+  }
+  // Each copy out of line, and the runtime-length path too: each compiled on its own, not in
+  // whatever function the caller's add() is inlined into. Inline, their speed moved with the
+  // surroundings: the update bench's runtime K = 32 (double) took 173-176 ns per sample
+  // instead of 137, a timing program's copy for K = 8 37 ns instead of 25.
+  template <int N, typename XD>
+  EIGEN_DONT_INLINE Status addAs(const Eigen::MatrixBase<XD>& x, Scalar y, Scalar w) {
+    return addChecked<false>(x.template head<N>(), y, w);
+  }
+  template <typename XD>
+  EIGEN_DONT_INLINE Status addRuntime(const Eigen::MatrixBase<XD>& x, Scalar y, Scalar w) {
+    return addChecked<true>(x, y, w);
+  }
+
   template <typename XD>
   Status check(const Eigen::MatrixBase<XD>& x, Scalar y, Scalar w) const {
     if (derived().status() != Status::ok) return derived().status();  // incl. the estimator's own options
@@ -884,15 +938,15 @@ class EstimatorBase {
   Scalar foldStep(const Eigen::MatrixBase<XD>& x, Scalar y, Scalar w, Scalar lam,
                   const typename Centering<Scalar, K, MaxK>::Step& step) {
     m_step = lam;
-    if constexpr (detail::CenteringFirst<Derived>::value) {
+    if constexpr (detail::CenteringFirst<Derived>::value && detail::viewSize<K, XD> != Eigen::Dynamic) {
       // The step commits while d is still in registers: after the estimator's stores a
       // compiler must read m_row back (they might alias it), and that read sat on the
       // loop-carried chain of the means.
-      m_centering.commitStep(step, lam, m_fit.intercept, m_row);
+      m_centering.template commitStep<detail::viewSize<K, XD>>(step, lam, m_fit.intercept, m_row);
       derived().foldRow(x, y, w, m_row, step.delta);
     } else {
       derived().foldRow(x, y, w, m_row, step.delta);
-      m_centering.commitStep(step, lam, m_fit.intercept, m_row);
+      m_centering.template commitStep<detail::viewSize<K, XD>>(step, lam, m_fit.intercept, m_row);
     }
     m_step = m_lambda;
     return step.delta;

@@ -95,6 +95,7 @@ class GivensQr : public EstimatorBase<GivensQr<Scalar_, K_, MaxK_>, Scalar_, K_,
   static constexpr bool positionalAges = false;  ///< ages live in the state: addDelayed/advance are exact
   static constexpr bool deferredCentering = false;  ///< folds at once (see EstimatorBase::syncCentering)
   static constexpr bool fusedRows = true;  ///< addRows validates and folds in one pass (ingestRows)
+  static constexpr int sizedUpTo = 8;  ///< per-size copies of add for a runtime K up to 8 (EstimatorBase::addSized)
 
   /// Fixed K. status() reports invalid options; see EstimatorBase::status().
   explicit GivensQr(const Options& options = Options()) : GivensQr(K_ == Eigen::Dynamic ? 0 : K_, options) {}

@@ -8,6 +8,7 @@
 
 #include "rowfold/detail/cholesky.hpp"
 #include "rowfold/detail/gram_block.hpp"
+#include "rowfold/detail/target.hpp"
 #include "rowfold/estimator_base.hpp"
 
 namespace rowfold {
@@ -71,12 +72,13 @@ class NormalEquations : public EstimatorBase<NormalEquations<Scalar_, K_, MaxK_>
   static constexpr bool guardable = true;  ///< the windup guard and outlier gate apply
   static constexpr bool positionalAges = false;  ///< ages live in the state: addDelayed/advance are exact
   static constexpr bool deferredCentering = false;  ///< folds at once (see EstimatorBase::syncCentering)
-  /// foldRow reads no centering, so add() commits the centering step first (EstimatorBase::
-  /// foldStep). Fixed K only: with a runtime K that order measured slower (timing program,
-  /// portable, double, K = 32 / 64: 143-148 / 451-454 ns per sample in the old order,
-  /// 166-168 / 476-489 in this one).
-  static constexpr bool centeringFirst = K_ != Eigen::Dynamic;
+  /// foldRow reads no centering, so add() commits the centering step first where its loops
+  /// have a compile-time length (EstimatorBase::foldStep).
+  static constexpr bool centeringFirst = true;
   static constexpr bool fusedRows = true;  ///< addRows validates and folds in one pass (ingestRows)
+  /// With a runtime K up to 8 (the size of most plant models), the unguarded add() runs a copy
+  /// of its path compiled for that K (EstimatorBase::addSized).
+  static constexpr int sizedUpTo = 8;
 
   /// Fixed K. status() reports invalid options; see EstimatorBase::status().
   explicit NormalEquations(const Options& options = Options())
@@ -111,53 +113,69 @@ class NormalEquations : public EstimatorBase<NormalEquations<Scalar_, K_, MaxK_>
   // 7.7-8.3 ns per sample (bench/README, store-order round), where g++ had declined to inline
   // it in a large translation unit. At K = 8 the forced inline measured 10-15 % slower; larger K
   // and runtime K are left to the compiler. Not on Cortex-M: no vector registers to spill there,
-  // and each inlined copy is code (M4F, K = 4: +456 B of text).
-#if defined(__ARM_ARCH_PROFILE) && __ARM_ARCH_PROFILE == 'M'
-  static constexpr bool kInlineFold = false;
-#else
-  static constexpr bool kInlineFold = K_ != Eigen::Dynamic && K_ <= 4;
-#endif
-  template <typename XD, bool I = kInlineFold, std::enable_if_t<I, int> = 0>
+  // and each inlined copy is code (M4F, K = 4: +456 B of text). KV: the length of the loops,
+  // K or, with a runtime K, that of x (a fixed-size block from add's per-size copies).
+  template <int KV>
+  static constexpr bool kInlineFold = KV != Eigen::Dynamic && KV <= 4 && !detail::kMicrocontroller;
+  template <typename XD, bool I = kInlineFold<detail::viewSize<K_, XD>>, std::enable_if_t<I, int> = 0>
   EIGEN_ALWAYS_INLINE void foldRow(const Eigen::MatrixBase<XD>&, Scalar, Scalar, const Vector1& d, Scalar delta) {
-    foldCentered(d, delta);
+    foldCentered<detail::viewSize<K_, XD>>(d, delta);
   }
-  template <typename XD, bool I = kInlineFold, std::enable_if_t<!I, int> = 0>
+  template <typename XD, bool I = kInlineFold<detail::viewSize<K_, XD>>, std::enable_if_t<!I, int> = 0>
   void foldRow(const Eigen::MatrixBase<XD>&, Scalar, Scalar, const Vector1& d, Scalar delta) {
-    foldCentered(d, delta);
+    foldCentered<detail::viewSize<K_, XD>>(d, delta);
   }
 
-  /// G <- lambda G + delta d d' (lower triangle).
+  /// G <- lambda G + delta d d' (lower triangle), loops of length KV + 1.
+  template <int KV>
   EIGEN_ALWAYS_INLINE void foldCentered(const Vector1& d, Scalar delta) {
+    constexpr int N = detail::plusOne(KV);
     const Scalar lambda = this->lambda();
+    const Eigen::Index n = m_gram.cols();
     // u = sqrt(delta) d, G += u u': the rounding of the symmetric square-root form, which keeps
     // about a digit more than delta d_i d_j on exact-fit data (NIST Wampler1: 7.8 vs 6.5).
-    m_u = std::sqrt(delta) * d;
-    if constexpr (kUnrolledRank1) {
+    // A runtime K's copy for KV <= 4: u in a local, which the compiler keeps in registers (the
+    // member m_u lives on the heap there, and the fold read back what had just been stored:
+    // timing program, native, runtime K = 2, double 9.3-9.7 -> 8.8-9.3 ns per sample, float
+    // 10.6 -> 10.0-11.0). At K = 8 the local measured slower (double 22.6-23.1 -> 34.6-35.2).
+    if constexpr (N != Eigen::Dynamic && N <= 5 && K_ == Eigen::Dynamic) {
       if (lambda == Scalar(1)) {
-        rank1Unrolled(std::make_integer_sequence<int, K_ + 1>{});
+        const Eigen::Matrix<Scalar, N, 1> u = std::sqrt(delta) * d.template head<N>();
+        rank1Unrolled<N>(u.data(), std::make_integer_sequence<int, N>{});
         return;
       }
     }
-    const Eigen::Index n = m_gram.cols();
-    Scalar* const g = m_gram.data();
-    const Scalar* __restrict v = m_u.data();
-    // Lower triangle, column by column (contiguous); forgetting fused into the same pass.
+    detail::sizedAs<N>(m_u) = std::sqrt(delta) * detail::sizedAs<N>(d);
+    if constexpr (N != Eigen::Dynamic) {
+      if (lambda == Scalar(1)) {
+        rank1Unrolled<N>(m_u.data(), std::make_integer_sequence<int, N>{});
+        return;
+      }
+    }
+    // Lower triangle, column by column (contiguous) from the diagonal down; forgetting fused
+    // into the same pass. Few loop variables on purpose: with a column index and a row index
+    // g++ kept two of them on the stack and reloaded them once per column, and the time per
+    // sample moved with the caller (timing program, runtime K = 32, double, add out of line:
+    // 163-168 ns, 143-151 in this form; probably the reloads waiting on the column's stores
+    // at addresses equal modulo 4 KiB, not confirmed: no hardware counters here).
+    Scalar* __restrict gd = m_gram.data();  // the diagonal entry of column j
+    const Scalar* __restrict vd = m_u.data();  // v + j
+    const Eigen::Index step = n + 1;
     if (lambda == Scalar(1)) {
-      for (Eigen::Index j = 0; j < n; ++j) {
-        Scalar* __restrict gj = g + j * n;
-        const Scalar a = v[j];
-        for (Eigen::Index i = j; i < n; ++i) gj[i] += a * v[i];
+      for (Eigen::Index len = n; len > 0; --len, gd += step, ++vd) {
+        const Scalar a = vd[0];
+        for (Eigen::Index i = 0; i < len; ++i) gd[i] += a * vd[i];
       }
     } else {
-      for (Eigen::Index j = 0; j < n; ++j) {
-        Scalar* __restrict gj = g + j * n;
-        const Scalar a = v[j];
-        for (Eigen::Index i = j; i < n; ++i) gj[i] = lambda * gj[i] + a * v[i];
+      for (Eigen::Index len = n; len > 0; --len, gd += step, ++vd) {
+        const Scalar a = vd[0];
+        for (Eigen::Index i = 0; i < len; ++i) gd[i] = lambda * gd[i] + a * vd[i];
       }
     }
   }
 
-  // Fixed K, lambda = 1: the same update, each column a loop of compile-time length and the
+  // Loops of compile-time length N (fixed K, or a runtime K through add's per-size copies),
+  // lambda = 1: the same update, each column a loop of compile-time length and the
   // sequence of columns unrolled, so that no column pays a runtime loop's prologue and epilogue
   // (native bench, double: K = 8 33 -> 22 ns/sample, K = 16 57 -> 40, K = 32 132 -> 80;
   // bench/README, rank-1 round). Plain loops, not Eigen blocks: fixed-size blocks of every
@@ -168,20 +186,16 @@ class NormalEquations : public EstimatorBase<NormalEquations<Scalar_, K_, MaxK_>
   // loops above keep one choice. g + a v has one fused form only. The column is written again
   // here rather than shared with the runtime loops: a helper with runtime index arguments
   // (constants once inlined) measured 5-15 % slower at fixed K = 16 and 32.
-  static constexpr bool kUnrolledRank1 = K_ != Eigen::Dynamic;
-
-  template <int... J>
-  EIGEN_ALWAYS_INLINE void rank1Unrolled(std::integer_sequence<int, J...>) {
+  template <int N, int... J>
+  EIGEN_ALWAYS_INLINE void rank1Unrolled(const Scalar* __restrict v, std::integer_sequence<int, J...>) {
     Scalar* const g = m_gram.data();
-    const Scalar* __restrict v = m_u.data();
-    (rank1Column<J>(g, v), ...);
+    (rank1Column<N, J>(g, v), ...);
   }
-  template <int J>
+  template <int N, int J>
   static EIGEN_ALWAYS_INLINE void rank1Column(Scalar* g, const Scalar* __restrict v) {
-    constexpr int n = K_ + 1;
-    Scalar* __restrict gj = g + J * n;
+    Scalar* __restrict gj = g + J * N;
     const Scalar a = v[J];
-    for (int i = J; i < n; ++i) gj[i] += a * v[i];
+    for (int i = J; i < N; ++i) gj[i] += a * v[i];
   }
 
   /// One-pass addRows (sizes checked, guards off; see the class comment): the Status of the

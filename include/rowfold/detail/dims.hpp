@@ -4,6 +4,7 @@
 
 #include <Eigen/Core>
 #include <type_traits>
+#include <utility>
 
 namespace rowfold::detail {
 
@@ -27,6 +28,24 @@ struct Dims {
   using Vector1 = Eigen::Matrix<Scalar, K1, 1, Eigen::ColMajor, MaxK1, 1>;
   using Matrix1 = Eigen::Matrix<Scalar, K1, K1, Eigen::ColMajor, MaxK1, MaxK1>;
 };
+
+/// The compile-time length of the regressors x given to an estimator of K regressors: K when
+/// fixed; with a runtime K, x's own (Eigen::Dynamic, or a fixed-size block: EstimatorBase's
+/// per-size copies of add pass one, see SizedUpTo). Checked equal to the runtime K first.
+template <int K, typename XD>
+inline constexpr int viewSize = K != Eigen::Dynamic ? K : int(XD::SizeAtCompileTime);
+
+/// A whole vector v with the compile-time length KV: v itself when KV is Eigen::Dynamic or v's
+/// own length, else its fixed-size head (v of runtime length KV: EstimatorBase's per-size
+/// copies). Not a runtime head: that one loses the alignment Eigen knows of a whole vector
+/// (NormalEquations, runtime K = 16: 64 -> 78 ns per sample with the peeling loop it adds).
+template <int KV, typename V>
+decltype(auto) sizedAs(V&& v) {
+  if constexpr (KV == Eigen::Dynamic || int(std::decay_t<V>::SizeAtCompileTime) == KV)
+    return std::forward<V>(v);
+  else
+    return v.template head<KV>();
+}
 
 /// v.head(n) as a fixed-size block when N is known at compile time (N == n then): Eigen emits
 /// straight-line code for it, where a runtime-sized head keeps a size and an alignment test on
