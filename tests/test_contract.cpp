@@ -242,6 +242,22 @@ TEST_CASE_TEMPLATE_DEFINE("contract", F, contract_id) {
     CHECK(est.count() == 0);
   }
 
+  SUBCASE("a size that does not fit is refused with a Status, not an assert") {
+    // Fixed K = 3: any other k; runtime K: k <= 0. Eigen's assertions are counted (alloc fence).
+    using Type = typename F::Type;
+    for (const Eigen::Index k : {Eigen::Index(-3), Eigen::Index(0), Eigen::Index(Type::K == Eigen::Dynamic ? -1 : 4)}) {
+      const long hitsBefore = rowfold_test::eigenAssertHits.load();
+      Type est(k, typename Type::Options());
+      CHECK(est.status() == Status::wrong_size);
+      CHECK(est.add(randomRow<Scalar>(rng), Scalar(1)) == Status::wrong_size);
+      CHECK(est.count() == 0);
+      const auto s = est.solve();
+      CHECK(s.status != Status::ok);
+      CHECK(s.coefficients.allFinite());
+      CHECK(rowfold_test::eigenAssertHits.load() == hitsBefore);
+    }
+  }
+
   SUBCASE("reset forgets everything") {
     auto est = F::make();
     for (int i = 0; i < 10; ++i) REQUIRE(est.add(randomRow<Scalar>(rng), Scalar(1)) == Status::ok);
@@ -253,6 +269,27 @@ TEST_CASE_TEMPLATE_DEFINE("contract", F, contract_id) {
 
 TEST_CASE_TEMPLATE_INVOKE(contract_id, ROWFOLD_WITH_FLOAT(ROWFOLD_CONTRACT_TYPES(float)) ROWFOLD_CONTRACT_TYPES(double)
                           ROWFOLD_WITH_LONG_DOUBLE(ROWFOLD_CONTRACT_TYPES(long double)));
+
+TEST_CASE("a bounded MaxK and a runtime capacity that do not fit are refused with a Status, not an assert") {
+  const long hitsBefore = rowfold_test::eigenAssertHits.load();
+  rowfold::NormalEquations<double, Eigen::Dynamic, 4> over(6, {});
+  CHECK(over.status() == Status::wrong_size);
+  CHECK(over.add(Eigen::VectorXd::Ones(6), 1.0) == Status::wrong_size);
+  rowfold::GivensQr<float, Eigen::Dynamic, 4> overFloat(5, {});
+  CHECK(overFloat.status() == Status::wrong_size);
+  rowfold::BatchQrOptions negative;
+  negative.capacity = -5;
+  rowfold::BatchQr<double, Eigen::Dynamic> batch(2, negative);
+  CHECK(batch.status() == Status::invalid_options);
+  CHECK(batch.add(Eigen::Vector2d(1, 2), 1.0) == Status::invalid_options);
+  // g++ 12 -O2 once rejected a TU building these two with -Werror (-Walloc-size-larger-than on
+  // the unchecked negative k); the tests build with -Werror.
+  rowfold::NormalEquations<long double, Eigen::Dynamic> wide(-1, {});
+  CHECK(wide.status() == Status::wrong_size);
+  rowfold::NormalEquations<double, Eigen::Dynamic> fits(3, {});
+  CHECK(fits.status() == Status::ok);
+  CHECK(rowfold_test::eigenAssertHits.load() == hitsBefore);
+}
 
 TEST_CASE("collinear inputs raise the VIF flag (threshold 10 = common practice, Marquardt 1970)") {
   rowfold::GivensQr<double, 2> est;

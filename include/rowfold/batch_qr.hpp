@@ -116,22 +116,22 @@ class BatchQr : public EstimatorBase<BatchQr<Scalar_, K_, Capacity_, MaxK_>, Sca
   /// `wrong_size`). Allocates the row buffer and the solve workspace (capacity (2K + 6) scalars
   /// plus O(K)) unless Capacity and K are compile-time; nothing later.
   BatchQr(Eigen::Index k, const Options& options)
-      : Base(k, options),
+      : Base(k, options),  // first: regressors() below is the storage size (detail::storedSize)
         m_options(options),
-        m_capacity(Capacity_ == Eigen::Dynamic ? options.capacity : Capacity_),
-        m_x(m_capacity, k),
+        m_capacity(Capacity_ != Eigen::Dynamic ? Capacity_ : options.capacity > 0 ? options.capacity : 0),
+        m_x(m_capacity, this->regressors()),
         m_y(m_capacity),
         m_w(m_capacity),
-        m_design(m_capacity, k + 1),
+        m_design(m_capacity, this->regressors() + 1),
         m_qtb(m_capacity),
         m_r(m_capacity),
         m_f(m_capacity),
-        m_tau(k + 1),
-        m_sol(k + 1),
-        m_solLo(k + 1),
-        m_dx(k + 1),
-        m_tmp(k + 1),
-        m_syncRow(k + 1) {
+        m_tau(this->regressors() + 1),
+        m_sol(this->regressors() + 1),
+        m_solLo(this->regressors() + 1),
+        m_dx(this->regressors() + 1),
+        m_tmp(this->regressors() + 1),
+        m_syncRow(this->regressors() + 1) {
     if (!(m_capacity > 0) || options.refinementSteps < 0) m_badOptions = true;
     m_x.setZero();  // once: nothing reads a slot beyond rows(), but copies copy the whole buffer
     m_y.setZero();

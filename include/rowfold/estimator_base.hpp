@@ -141,8 +141,8 @@ class EstimatorBase {
     if constexpr (K != Eigen::Dynamic) return K;
     else return m_k;
   }
-  /// Outcome of option validation at construction: `ok`, `wrong_size` (k <= 0, or k != K for
-  /// a fixed K) or `invalid_options` (see validate(const FitOptions&)); estimators with options of
+  /// Outcome of option validation at construction: `ok`, `wrong_size` (k <= 0, k != K for a
+  /// fixed K, or k > MaxK for a bounded one; regressors() is then K, or 1 for Eigen::Dynamic) or `invalid_options` (see validate(const FitOptions&)); estimators with options of
   /// their own shadow it. Anything but `ok` makes `add` refuse every sample of positive weight. O(1).
   Status status() const { return m_status; }
   /// The shared options given at construction.
@@ -675,24 +675,30 @@ class EstimatorBase {
   }
 
  protected:
-  /// For estimators: `k` regressors (must equal K unless K is Eigen::Dynamic; k > 0) and the
-  /// shared options. Sets status() (`wrong_size` or validate(fit)); allocates for Eigen::Dynamic K only.
+  /// For estimators: `k` regressors (must equal K unless K is Eigen::Dynamic; k > 0; at most
+  /// MaxK when that is bounded) and the shared options. Sets status() (`wrong_size` or
+  /// validate(fit)); allocates for Eigen::Dynamic K only. A k that does not fit makes storage of
+  /// sizedFor(k) and sets `wrong_size`, nothing else.
   EstimatorBase(Eigen::Index k, const FitOptions& fit)
       : m_fit(fit),
-        m_k(k),
+        m_k(sizedFor(k)),
         m_lambda(static_cast<Scalar>(fit.forgetting)),
         m_step(static_cast<Scalar>(fit.forgetting)),
-        m_centering(k),
-        m_guard(k),
-        m_work(k),
-        m_row(k + 1),
-        m_solution(k) {
-    m_status = (K != Eigen::Dynamic && k != K) || k <= 0 ? Status::wrong_size : validate(fit);
+        m_centering(sizedFor(k)),
+        m_guard(sizedFor(k)),
+        m_work(sizedFor(k)),
+        m_row(sizedFor(k) + 1),
+        m_solution(sizedFor(k)) {
+    m_status = !detail::fitsSize<K, MaxK>(k) ? Status::wrong_size : validate(fit);
     m_row.setZero();
     if (m_status == Status::ok && fit.outliers.enabled && !Derived::guardable) m_status = Status::invalid_options;
     m_guarded = Derived::guardable && m_status == Status::ok &&
                 ((fit.forgetting < 1.0 && fit.windup.enabled) || fit.outliers.enabled);
   }
+
+  /// The size an estimator's own storage is made with for a constructor's k: k when it fits,
+  /// else K (fixed) or 1, so that a bad k only sets `wrong_size` (detail::storedSize).
+  static constexpr Eigen::Index sizedFor(Eigen::Index k) { return detail::storedSize<K, MaxK>(k); }
 
   /// CRTP access to the estimator.
   Derived& derived() { return static_cast<Derived&>(*this); }

@@ -100,11 +100,11 @@ class ForgettingRls : public EstimatorBase<ForgettingRls<Scalar_, K_, MaxK_>, Sc
   /// Runtime K (any K > 0 for Eigen::Dynamic; must equal K otherwise, else status() is
   /// `wrong_size`). Allocates P, theta and the gain for Eigen::Dynamic K, nothing later.
   ForgettingRls(Eigen::Index k, const Options& options)
-      : Base(k, options),
+      : Base(k, options),  // first: regressors() below is the storage size (detail::storedSize)
         m_options(options),
-        m_P(k, k),
-        m_theta(k),
-        m_gain(k),
+        m_P(this->regressors(), this->regressors()),
+        m_theta(this->regressors()),
+        m_gain(this->regressors()),
         m_lambdaOption(static_cast<Scalar>(options.forgetting)),
         m_invLambda(Scalar(1) / m_lambdaOption) {
     if (this->status() == Status::ok && options.start == RlsStart::prior &&

@@ -102,15 +102,17 @@ class GivensQr : public EstimatorBase<GivensQr<Scalar_, K_, MaxK_>, Scalar_, K_,
   /// Runtime K (any K > 0 for Eigen::Dynamic; must equal K otherwise, else status() is
   /// `wrong_size`). Allocates its state for Eigen::Dynamic K, nothing later.
   GivensQr(Eigen::Index k, const Options& options)
-      : Base(k, options),
-        m_state(k + 1, stride(k + 1)),
-        m_x(stride(k + 1)),
-        m_rld(k + 1),
-        m_block(k),
-        m_wide(k + 1 >= kWide ? detail::RowBlock<Scalar, K_, MaxK_>::rowsFor(k) + 1 + kPanelRows : 0,
-               k + 1 >= kWide ? stride(k + 1) : 0),
-        m_factor(k + 1, k + 1),
-        m_savedCentering(k) {
+      : Base(k, options),  // first: regressors() below is the storage size (detail::storedSize)
+        m_state(this->regressors() + 1, stride(this->regressors() + 1)),
+        m_x(stride(this->regressors() + 1)),
+        m_rld(this->regressors() + 1),
+        m_block(this->regressors()),
+        m_wide(this->regressors() + 1 >= kWide
+                   ? detail::RowBlock<Scalar, K_, MaxK_>::rowsFor(this->regressors()) + 1 + kPanelRows
+                   : 0,
+               this->regressors() + 1 >= kWide ? stride(this->regressors() + 1) : 0),
+        m_factor(this->regressors() + 1, this->regressors() + 1),
+        m_savedCentering(this->regressors()) {
     m_state.setZero();
     m_x.setZero();
     m_rld.setZero();

@@ -86,8 +86,13 @@ class NormalEquations : public EstimatorBase<NormalEquations<Scalar_, K_, MaxK_>
   /// Runtime K (any K > 0 for Eigen::Dynamic; must equal K otherwise, else status() is
   /// `wrong_size`). Allocates the co-moment matrix for Eigen::Dynamic K, nothing later.
   NormalEquations(Eigen::Index k, const Options& options)
-      : Base(k, options), m_gram(k + 1, k + 1), m_call(k + 1, k + 1), m_callCentering(k), m_block(k), m_u(k + 1),
-        m_diff(k + 1) {
+      : Base(k, options),  // first: regressors() below is the storage size (detail::storedSize)
+        m_gram(this->regressors() + 1, this->regressors() + 1),
+        m_call(this->regressors() + 1, this->regressors() + 1),
+        m_callCentering(this->regressors()),
+        m_block(this->regressors()),
+        m_u(this->regressors() + 1),
+        m_diff(this->regressors() + 1) {
     m_gram.setZero();
     m_call.setZero();
     m_u.setZero();

@@ -29,6 +29,24 @@ struct Dims {
   using Matrix1 = Eigen::Matrix<Scalar, K1, K1, Eigen::ColMajor, MaxK1, MaxK1>;
 };
 
+/// Whether an estimator declared with K (and MaxK) regressors can take k of them: k > 0, equal
+/// to K when K is fixed, at most MaxK when that is bounded.
+template <int K, int MaxK>
+constexpr bool fitsSize(Eigen::Index k) {
+  return k > 0 && (K == Eigen::Dynamic ? MaxK == Eigen::Dynamic || k <= MaxK : k == K);
+}
+
+/// The size an estimator's storage is made with for k regressors: k when it fits (fitsSize),
+/// else K when fixed and 1 otherwise. A k that does not fit only sets the status to
+/// `wrong_size`; the storage must still get a size Eigen accepts (a negative, wrong fixed or
+/// over-MaxK size fails Eigen's assertion, and g++ -O2 reports the negative one as an
+/// allocation larger than any object, -Walloc-size-larger-than).
+template <int K, int MaxK>
+constexpr Eigen::Index storedSize(Eigen::Index k) {
+  if (fitsSize<K, MaxK>(k)) return k;
+  return K != Eigen::Dynamic ? Eigen::Index(K) : Eigen::Index(1);
+}
+
 /// The compile-time length of the regressors x given to an estimator of K regressors: K when
 /// fixed; with a runtime K, x's own (Eigen::Dynamic, or a fixed-size block: EstimatorBase's
 /// per-size copies of add pass one, see SizedUpTo). Checked equal to the runtime K first.
