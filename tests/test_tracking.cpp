@@ -370,7 +370,8 @@ struct TypeAt {
 
 // With a runtime K, the length of the loops on the per-sample path comes from x's type: a
 // fixed-size x gives loops of that length, x of runtime length K <= 8 the copy of add compiled
-// for K (EstimatorBase::addSized, NormalEquations and GivensQr), and K = 9 runtime-length loops.
+// for K (EstimatorBase::addSized: NormalEquations, GivensQr, ForgettingRls), and K = 9
+// runtime-length loops (so K = 9 compares the loops of compile-time and of runtime length).
 // All fold the same operations in the same order, so one stream given as fixed-size vectors
 // and as runtime-length ones must give the same bits (for every estimator, K = 3 and 9). The
 // test fails when the copy alone scales y by 1.0001 (tried on NormalEquations and GivensQr).
@@ -380,6 +381,8 @@ TEST_CASE_TEMPLATE("a runtime K folds the same bits from x of fixed and of runti
                    TypeAt<rowfold::GivensQr<float, Eigen::Dynamic>, 3>,
                    TypeAt<rowfold::GivensQr<double, Eigen::Dynamic>, 9>,
                    TypeAt<rowfold::ForgettingRls<double, Eigen::Dynamic>, 3>,
+                   TypeAt<rowfold::ForgettingRls<double, Eigen::Dynamic>, 9>,
+                   TypeAt<rowfold::ForgettingRls<float, Eigen::Dynamic>, 9>,
                    TypeAt<rowfold::BatchQr<double, Eigen::Dynamic>, 3>) {
   using E = typename P::Type;
   using S = typename E::Scalar;

@@ -292,6 +292,7 @@ class BatchQr : public EstimatorBase<BatchQr<Scalar_, K_, Capacity_, MaxK_>, Sca
   }
 
   void ageState(Scalar f) { m_w.head(m_n) *= f; }
+  template <int KV = K_>  // the loop length of add's per-size copies (EstimatorBase); unused
   bool priorInfo(const Vector1&, Scalar&, Scalar&) const { return false; }
   void ageResidual(Scalar) {}
   template <typename VD>

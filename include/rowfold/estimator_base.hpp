@@ -39,6 +39,11 @@ template <typename D, typename = void>
 struct SizedUpTo : std::integral_constant<int, 0> {};
 template <typename D>
 struct SizedUpTo<D, std::void_t<decltype(D::sizedUpTo)>> : std::integral_constant<int, D::sizedUpTo> {};
+/// Derived::sizedGuarded if the estimator declares it, else false (the copies are unguarded).
+template <typename D, typename = void>
+struct SizedGuarded : std::false_type {};
+template <typename D>
+struct SizedGuarded<D, std::void_t<decltype(D::sizedGuarded)>> : std::bool_constant<D::sizedGuarded> {};
 }  // namespace detail
 
 /// Shared interface of all estimators. The contract, in code:
@@ -69,6 +74,8 @@ struct SizedUpTo<D, std::void_t<decltype(D::sizedUpTo)>> : std::integral_constan
 /// - optionally `static constexpr int sizedUpTo = N`: with a runtime K <= N, the unguarded
 ///   add() runs a copy of its path compiled for that K, handing foldRow x as a fixed-size block
 ///   (foldRow reads the length from x's type, detail::viewSize). None on Cortex-M (flash);
+///   with `static constexpr bool sizedGuarded = true` as well, the copies include the guarded
+///   path (priorInfo<KV> then gets the length too);
 /// - optionally `void foldRows(X, y, w)`: fold validated rows (w == nullptr: unit weights) in
 ///   blocks; the default folds them one at a time;
 /// - optionally `static constexpr bool fusedRows = true` with `Status ingestRows(X, y, w)`:
@@ -83,7 +90,7 @@ struct SizedUpTo<D, std::void_t<decltype(D::sizedUpTo)>> : std::integral_constan
 /// - `Status canMerge(const Derived&) const` and `void mergeState(const Derived&, Scalar age,
 ///   const Vector1& correction)`: combine another state (merge);
 /// - `void ageState(Scalar f)`: multiply its information by f (relax, advance);
-/// - for the guards: `static constexpr bool guardable`, `bool priorInfo(row, h, e) const`
+/// - for the guards: `static constexpr bool guardable`, `template <int KV = K> bool priorInfo(row, h, e) const`
 ///   (leverage h = phi'M^-1 phi and prediction error e of a scaled row from the current state),
 ///   `void ageResidual(Scalar f)` (forget the residual sum only) and
 ///   `bool currentSlopes(Vector&) const`; `static constexpr bool positionalAges` (true if a
@@ -198,7 +205,7 @@ class EstimatorBase {
   Status add(const Eigen::MatrixBase<XD>& x, Scalar y, Scalar w) {
     static_assert(std::is_same<typename XD::Scalar, Scalar>::value, "rowfold: x must have the estimator's Scalar");
     if constexpr (kSizedUpTo > 0 && XD::SizeAtCompileTime == Eigen::Dynamic) {  // a fixed-size x is sized already
-      if (!m_guarded && x.size() <= kSizedUpTo && x.size() == regressors())
+      if ((kSizedGuarded || !m_guarded) && x.size() <= kSizedUpTo && x.size() == regressors())
         return addSized(x, y, w, std::make_integer_sequence<int, kSizedUpTo>{});
       return addRuntime(x, y, w);
     } else {
@@ -891,13 +898,16 @@ class EstimatorBase {
     return Status::ok;
   }
 
-  // Runtime K up to the estimator's sizedUpTo: the unguarded add compiled for each K <= N, x as
-  // a fixed-size block, so that the checks, the centering and the estimator's fold have loops
-  // of compile-time length, as with a fixed K. The same operations in the same order, so the
-  // same results (tests/test_tracking.cpp, "an inert guard"). NormalEquations, native update
-  // bench, double, runtime K = 2 / 4 / 8: 19.0 / 25.4 / 35.0 -> 9.2 / 13.4 / 22.9 ns per
-  // sample (bench/README, per-size round).
+  // Runtime K up to the estimator's sizedUpTo: the unguarded add (with sizedGuarded, the
+  // guarded one too) compiled for each K <= N, x as a fixed-size block, so that the checks, the
+  // centering and the estimator's fold have loops of compile-time length, as with a fixed K.
+  // The same operations in the same order, so the same results (tests/test_tracking.cpp, "an
+  // inert guard" and "a runtime K folds the same bits"). NormalEquations, native update bench,
+  // double, runtime K = 2 / 4 / 8: 19.0 / 25.4 / 35.0 -> 9.2 / 13.4 / 22.9 ns per sample
+  // (bench/README, per-size round).
   static constexpr int kSizedUpTo = K == Eigen::Dynamic && !detail::kMicrocontroller ? detail::SizedUpTo<Derived>::value : 0;
+  // The copies include the guarded path too: each copy then carries it (compile time, code).
+  static constexpr bool kSizedGuarded = detail::SizedGuarded<Derived>::value;
   template <typename XD, int... N>
   EIGEN_ALWAYS_INLINE Status addSized(const Eigen::MatrixBase<XD>& x, Scalar y, Scalar w, std::integer_sequence<int, N...>) {
     Status s = Status::ok;  // x.size() is one of N + 1: exactly one copy runs
@@ -910,7 +920,7 @@ class EstimatorBase {
   // instead of 137, a timing program's copy for K = 8 37 ns instead of 25.
   template <int N, typename XD>
   EIGEN_DONT_INLINE Status addAs(const Eigen::MatrixBase<XD>& x, Scalar y, Scalar w) {
-    return addChecked<false>(x.template head<N>(), y, w);
+    return addChecked<kSizedGuarded>(x.template head<N>(), y, w);
   }
   template <typename XD>
   EIGEN_DONT_INLINE Status addRuntime(const Eigen::MatrixBase<XD>& x, Scalar y, Scalar w) {
@@ -1030,7 +1040,8 @@ class EstimatorBase {
     const Scalar deltaRow = step0.delta;
     Scalar h = 0, ed = 0, q = 0, hxd = 0;
     const bool known =
-        deltaRow > Scalar(0) && derived().priorInfo(m_row, hxd, ed) && std::isfinite(hxd) && std::isfinite(ed);
+        deltaRow > Scalar(0) && derived().template priorInfo<detail::viewSize<K, XD>>(m_row, hxd, ed) &&
+        std::isfinite(hxd) && std::isfinite(ed);
     if (known) h = deltaRow * hxd;
     // The normalized prediction error q and its robust running scale are read only by the
     // outlier gate, variable forgetting and the change alarm; with all three off (the default)
@@ -1119,7 +1130,7 @@ class EstimatorBase {
         delta = fold(x, y, weight, lam);  // m_row: the unscaled centered row, weight delta
       m_priorOnRow = false;
     }
-    m_guard.foldSpread(lam, detail::headOf<K>(m_row, regressors()), delta);
+    m_guard.foldSpread(lam, detail::headOf<detail::viewSize<K, XD>>(m_row, regressors()), delta);
     if (lam < one && g.enabled && g.spreadFloor > 0.0 && known && supportFloor(static_cast<Scalar>(g.spreadFloor)))
       held = static_cast<std::uint16_t>(held | static_cast<std::uint16_t>(Flag::windup_guarded));
     m_guard.lastFlags = held;

@@ -9,7 +9,9 @@
 #include "rowfold/detail/cholesky.hpp"
 #include "rowfold/detail/givens.hpp"
 #include "rowfold/detail/short_dot.hpp"
+#include "rowfold/detail/target.hpp"
 #include "rowfold/estimator_base.hpp"
+
 
 namespace rowfold {
 
@@ -94,6 +96,8 @@ class ForgettingRls : public EstimatorBase<ForgettingRls<Scalar_, K_, MaxK_>, Sc
   /// symmetric); above it only the lower triangle is (see sweepP). Twice as many for float,
   /// whose SIMD packets hold twice the entries (measured, bench/README.md "P-triangle round").
   static constexpr Eigen::Index kBothTrianglesUpTo = sizeof(Scalar_) < sizeof(double) ? 32 : 16;
+  static constexpr int sizedUpTo = 8;  ///< per-size copies of add for a runtime K up to 8 (EstimatorBase::addSized)
+  static constexpr bool sizedGuarded = true;  ///< the copies include the guarded path (on by default for lambda < 1)
 
   /// Fixed K. status() reports invalid options.
   explicit ForgettingRls(const Options& options = Options()) : ForgettingRls(K_ == Eigen::Dynamic ? 0 : K_, options) {}
@@ -177,9 +181,10 @@ class ForgettingRls : public EstimatorBase<ForgettingRls<Scalar_, K_, MaxK_>, Sc
 
   template <typename XD>
   void foldRow(const Eigen::MatrixBase<XD>&, Scalar, Scalar, const Vector1& row, Scalar delta) {
+    constexpr int KV = detail::viewSize<K_, XD>;  // K, or with a runtime K x's length (copies)
     const Eigen::Index k = this->regressors();
     const Scalar lambda = this->lambda();
-    const auto phi = detail::headOf<K_>(row, k);
+    const auto phi = detail::headOf<KV>(row, k);
     const Scalar eta = row(k);
     if (!m_recursive) {
       // Exact start: accumulate M (in P's storage) and m (in theta's) until they determine the fit.
@@ -212,23 +217,25 @@ class ForgettingRls : public EstimatorBase<ForgettingRls<Scalar_, K_, MaxK_>, Sc
       return;
     }
     const Scalar kappa = delta / alpha;
-    m_theta += (kappa * e) * m_gain;
+    detail::sizedAs<KV>(m_theta) += (kappa * e) * detail::sizedAs<KV>(m_gain);
     bool positive;
     if (lambda == Scalar(1)) {
-      positive = sweepP<false>(Scalar(1), kappa);
+      positive = sweepP<false, KV>(Scalar(1), kappa);
     } else {
       // 1/lambda: precomputed for the configured factor; a guard's step factor divides here.
       const Scalar il = lambda == m_lambdaOption ? m_invLambda : Scalar(1) / lambda;
-      positive = sweepP<true>(il, kappa * il);
+      positive = sweepP<true, KV>(il, kappa * il);
     }
     m_sse = lambda * (m_sse + kappa * e * e);
     if (!positive) m_lost = true;
   }
 
-  /// Whether only P's lower triangle is kept (regressors() > kBothTrianglesUpTo).
+  /// Whether only P's lower triangle is kept (regressors() > kBothTrianglesUpTo). KV: the
+  /// length of the loops, K or, with a runtime K, x's (a fixed-size block from add's copies).
+  template <int KV = K_>
   bool lowerOnly() const {
-    if constexpr (K_ != Eigen::Dynamic)
-      return K_ > kBothTrianglesUpTo;
+    if constexpr (KV != Eigen::Dynamic)
+      return KV > kBothTrianglesUpTo;
     else
       return this->regressors() > kBothTrianglesUpTo;
   }
@@ -243,22 +250,17 @@ class ForgettingRls : public EstimatorBase<ForgettingRls<Scalar_, K_, MaxK_>, Sc
   ///   lower triangle costs up to 1.7x more instructions here (short runtime-length columns);
   /// - above: only the lower triangle (half the arithmetic, no copy, nothing to keep symmetric).
   /// Returns whether every diagonal entry of the new P is > 0.
-  template <bool Aged>
+  template <bool Aged, int KV>
   bool sweepP(Scalar il, Scalar s) {
-    const Eigen::Index k = this->regressors();
+    const Eigen::Index k = KV != Eigen::Dynamic ? Eigen::Index(KV) : this->regressors();
     Scalar* const P = m_P.data();
     const Scalar* __restrict g = m_gain.data();
-    if (lowerOnly()) {
+    if (lowerOnly<KV>()) {
       bool positive = true;
       for (Eigen::Index j = 0; j < k; ++j) {
         Scalar* __restrict pj = P + j * k;
         const Scalar gj = g[j];
-        for (Eigen::Index i = j; i < k; ++i) {
-          if constexpr (Aged)
-            pj[i] = pj[i] * il - (g[i] * gj) * s;
-          else
-            pj[i] -= (g[i] * gj) * s;
-        }
+        for (Eigen::Index i = j; i < k; ++i) sweepEntry<Aged>(pj[i], g[i] * gj, il, s);
         positive &= pj[j] > Scalar(0);
       }
       return positive;
@@ -274,11 +276,10 @@ class ForgettingRls : public EstimatorBase<ForgettingRls<Scalar_, K_, MaxK_>, Sc
       for (Eigen::Index j = 0; j < k; ++j) {
         Scalar* __restrict pj = P + j * k;
         const Scalar gj = g[j];
-        for (Eigen::Index i = 0; i < k; ++i) {
-          if constexpr (Aged)
-            pj[i] = pj[i] * il - (g[i] * gj) * s;
-          else
-            pj[i] -= (g[i] * gj) * s;
+        if constexpr (kKeepLoop<KV>) {
+          ROWFOLD_KEEP_LOOP for (Eigen::Index i = 0; i < KV; ++i) sweepEntry<Aged>(pj[i], g[i] * gj, il, s);
+        } else {
+          for (Eigen::Index i = 0; i < k; ++i) sweepEntry<Aged>(pj[i], g[i] * gj, il, s);
         }
       }
     }
@@ -287,8 +288,24 @@ class ForgettingRls : public EstimatorBase<ForgettingRls<Scalar_, K_, MaxK_>, Sc
     // aarch64, fixed and dynamic K): P loses exact symmetry, and the antisymmetric part then
     // grows like lambda^-n (Verhaegen 1989) until the fit breaks down. Copying the lower
     // triangle over the upper keeps P symmetric whatever the compiler fuses.
-    mirrorLower();
-    return (m_P.diagonal().array() > Scalar(0)).all();
+    mirrorLower<KV>();
+    return (detail::sizedAs<KV>(m_P.diagonal()).array() > Scalar(0)).all();
+  }
+
+  /// Loops of compile-time length KV > 2 (add's per-size copies for a runtime K) are kept as
+  /// loops (ROWFOLD_KEEP_LOOP). At 2 g++'s scalar unrolling is the faster code (runtime K = 2,
+  /// float: 16.2-16.4 ns per sample unrolled, 20.3-21.3 kept); at 4 the loop (double 32 against
+  /// 39 unrolled; timing program, native, guard off).
+  template <int KV>
+  static constexpr bool kKeepLoop = KV != Eigen::Dynamic && KV > 2;
+
+  /// One entry of the sweep: p il - gg s (Aged), else p - gg s; gg = g_i g_j.
+  template <bool Aged>
+  static EIGEN_ALWAYS_INLINE void sweepEntry(Scalar& p, Scalar gg, Scalar il, Scalar s) {
+    if constexpr (Aged)
+      p = p * il - gg * s;
+    else
+      p -= gg * s;
   }
 
   /// Copies P's lower triangle over the upper one. Four entries of a row of the lower triangle
@@ -296,8 +313,9 @@ class ForgettingRls : public EstimatorBase<ForgettingRls<Scalar_, K_, MaxK_>, Sc
   /// load, a store and three loop instructions each, and the update took 14 % longer at runtime
   /// K = 16, float, twice as long at fixed K = 32, float; bench/README.md, "Runtime-K gain
   /// round".)
+  template <int KV = K_>
   void mirrorLower() {
-    const Eigen::Index k = this->regressors();
+    const Eigen::Index k = KV != Eigen::Dynamic ? Eigen::Index(KV) : this->regressors();
     Scalar* const P = m_P.data();
     for (Eigen::Index j = 1; j < k; ++j) {
       Scalar* __restrict upper = P + j * k;    // P(0..j-1, j)
@@ -321,8 +339,9 @@ class ForgettingRls : public EstimatorBase<ForgettingRls<Scalar_, K_, MaxK_>, Sc
   /// phi's tail, and the entries below j get phi_j times the column below the diagonal.
   template <typename VD, typename GD>
   void gainOf(const VD& phi, GD& g) const {
-    const Eigen::Index k = this->regressors();
-    if (lowerOnly()) {
+    constexpr int KV = VD::SizeAtCompileTime;  // K, or with a runtime K x's length (copies)
+    const Eigen::Index k = KV != Eigen::Dynamic ? Eigen::Index(KV) : this->regressors();
+    if (lowerOnly<KV>()) {
       for (Eigen::Index j = 0; j < k; ++j) g(j) = Scalar(0);
       for (Eigen::Index j = 0; j < k; ++j) {
         const Eigen::Index below = k - 1 - j;
@@ -338,20 +357,29 @@ class ForgettingRls : public EstimatorBase<ForgettingRls<Scalar_, K_, MaxK_>, Sc
       const Scalar* const P = m_P.data();
       const Scalar* __restrict f = phi.data();
       Scalar* __restrict gi = g.data();
-      Eigen::Index j = 0;
+      const Eigen::Index whole = k - k % 4;  // (j + 4 <= k as the bound: g++ 12 misjudged the
+      Eigen::Index j = 0;                      // tail loop's trip count at a compile-time k = 8)
       for (Eigen::Index i = 0; i < k; ++i) gi[i] = Scalar(0);
-      for (; j + 4 <= k; j += 4) {
+      for (; j < whole; j += 4) {
         const Scalar* __restrict p0 = P + j * k;
         const Scalar* __restrict p1 = p0 + k;
         const Scalar* __restrict p2 = p1 + k;
         const Scalar* __restrict p3 = p2 + k;
         const Scalar f0 = f[j], f1 = f[j + 1], f2 = f[j + 2], f3 = f[j + 3];
-        for (Eigen::Index i = 0; i < k; ++i) gi[i] += (f0 * p0[i] + f1 * p1[i]) + (f2 * p2[i] + f3 * p3[i]);
+        if constexpr (kKeepLoop<KV>) {
+          ROWFOLD_KEEP_LOOP for (Eigen::Index i = 0; i < KV; ++i) gi[i] += (f0 * p0[i] + f1 * p1[i]) + (f2 * p2[i] + f3 * p3[i]);
+        } else {
+          for (Eigen::Index i = 0; i < k; ++i) gi[i] += (f0 * p0[i] + f1 * p1[i]) + (f2 * p2[i] + f3 * p3[i]);
+        }
       }
       for (; j < k; ++j) {
         const Scalar* __restrict pj = P + j * k;
         const Scalar fj = f[j];
-        for (Eigen::Index i = 0; i < k; ++i) gi[i] += fj * pj[i];
+        if constexpr (kKeepLoop<KV>) {
+          ROWFOLD_KEEP_LOOP for (Eigen::Index i = 0; i < KV; ++i) gi[i] += fj * pj[i];
+        } else {
+          for (Eigen::Index i = 0; i < k; ++i) gi[i] += fj * pj[i];
+        }
       }
       return;
     }
@@ -392,10 +420,11 @@ class ForgettingRls : public EstimatorBase<ForgettingRls<Scalar_, K_, MaxK_>, Sc
 
   /// h = phi'P phi and e = eta - phi'theta (O(K^2)); unknown before the exact start. Leaves
   /// g = P phi, h and e in scratch members, which the fold that follows reuses (priorOnRow).
+  template <int KV = K_>  // K, or with a runtime K the length of add's per-size copy
   bool priorInfo(const Vector1& row, Scalar& h, Scalar& e) const {
     if (!m_recursive) return false;
     const Eigen::Index k = this->regressors();
-    const auto phi = detail::headOf<K_>(row, k);
+    const auto phi = detail::headOf<KV>(row, k);
     gainOf(phi, m_gain);
     h = m_priorGain = rowDot(phi, m_gain);
     e = m_priorError = row(k) - rowDot(phi, m_theta);

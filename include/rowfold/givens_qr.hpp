@@ -626,6 +626,7 @@ class GivensQr : public EstimatorBase<GivensQr<Scalar_, K_, MaxK_>, Scalar_, K_,
 
   /// h = phi' M^-1 phi = |R^-T phi|^2 and the prediction error e = eta - phi'b = eta - u'z
   /// (u = R^-T phi): one forward substitution on the explicit factor (formed, K^2).
+  template <int KV = K_>  // the loop length of add's per-size copies (EstimatorBase); unused
   bool priorInfo(const Vector1& row, Scalar& h, Scalar& e) const {
     const Eigen::Index k = this->regressors();
     formFactor();

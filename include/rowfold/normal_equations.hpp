@@ -120,8 +120,9 @@ class NormalEquations : public EstimatorBase<NormalEquations<Scalar_, K_, MaxK_>
   // and runtime K are left to the compiler. Not on Cortex-M: no vector registers to spill there,
   // and each inlined copy is code (M4F, K = 4: +456 B of text). KV: the length of the loops,
   // K or, with a runtime K, that of x (a fixed-size block from add's per-size copies).
+  static constexpr int kSmallK = 4;  // up to this K: the fold inlined, and a copy's u in a local (below)
   template <int KV>
-  static constexpr bool kInlineFold = KV != Eigen::Dynamic && KV <= 4 && !detail::kMicrocontroller;
+  static constexpr bool kInlineFold = KV != Eigen::Dynamic && KV <= kSmallK && !detail::kMicrocontroller;
   template <typename XD, bool I = kInlineFold<detail::viewSize<K_, XD>>, std::enable_if_t<I, int> = 0>
   EIGEN_ALWAYS_INLINE void foldRow(const Eigen::MatrixBase<XD>&, Scalar, Scalar, const Vector1& d, Scalar delta) {
     foldCentered<detail::viewSize<K_, XD>>(d, delta);
@@ -143,7 +144,7 @@ class NormalEquations : public EstimatorBase<NormalEquations<Scalar_, K_, MaxK_>
     // member m_u lives on the heap there, and the fold read back what had just been stored:
     // timing program, native, runtime K = 2, double 9.3-9.7 -> 8.8-9.3 ns per sample, float
     // 10.6 -> 10.0-11.0). At K = 8 the local measured slower (double 22.6-23.1 -> 34.6-35.2).
-    if constexpr (N != Eigen::Dynamic && N <= 5 && K_ == Eigen::Dynamic) {
+    if constexpr (KV != Eigen::Dynamic && KV <= kSmallK && K_ == Eigen::Dynamic) {
       if (lambda == Scalar(1)) {
         const Eigen::Matrix<Scalar, N, 1> u = std::sqrt(delta) * d.template head<N>();
         rank1Unrolled<N>(u.data(), std::make_integer_sequence<int, N>{});
@@ -286,6 +287,7 @@ class NormalEquations : public EstimatorBase<NormalEquations<Scalar_, K_, MaxK_>
   /// h = phi' M^-1 phi and e = eta - phi'b from the augmented factor: O(K^3/6) per sample, so
   /// the guards make NormalEquations cost like a batch solve per sample (use GivensQr when they
   /// are needed at large K).
+  template <int KV = K_>  // the loop length of add's per-size copies (EstimatorBase); unused
   bool priorInfo(const Vector1& row, Scalar& h, Scalar& e) const {
     const Eigen::Index k = this->regressors();
     if (!augmentedFactor()) return false;

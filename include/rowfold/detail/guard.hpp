@@ -47,8 +47,11 @@ struct GuardState {
   /// `delta` (1 for a scaled row; c^2 for the unscaled centered row of the square-root-free path).
   template <typename DV>
   void foldSpread(Scalar lam, const Eigen::MatrixBase<DV>& phi, Scalar delta = Scalar(1)) {
-    spread = lam * spread + delta * phi.cwiseAbs2();
-    peak = peak.cwiseMax(spread);
+    constexpr int N = int(DV::SizeAtCompileTime);  // K, or a per-size copy's length (dims.hpp)
+    decltype(auto) s = sizedAs<N>(spread);
+    decltype(auto) p = sizedAs<N>(peak);
+    s = lam * s + delta * phi.cwiseAbs2();
+    p = p.cwiseMax(s);
   }
   /// Robust scale: the mean of q over the warm-up, then s^2 <- a s^2 + (1 - a) min(q, c^2 s^2).
   void foldScale(Scalar q, int warmup, Scalar memory, Scalar clip2) {
