@@ -149,8 +149,9 @@ class EstimatorBase {
     else return m_k;
   }
   /// Outcome of option validation at construction: `ok`, `wrong_size` (k <= 0, k != K for a
-  /// fixed K, or k > MaxK for a bounded one; regressors() is then K, or 1 for Eigen::Dynamic) or `invalid_options` (see validate(const FitOptions&)); estimators with options of
-  /// their own shadow it. Anything but `ok` makes `add` refuse every sample of positive weight. O(1).
+  /// fixed K, or k > MaxK for a bounded one; regressors() is then K, or 1 for Eigen::Dynamic)
+  /// or `invalid_options` (see validate(const FitOptions&)); estimators with options of their
+  /// own shadow it. Anything but `ok` makes `add` refuse every sample of positive weight. O(1).
   Status status() const { return m_status; }
   /// The shared options given at construction.
   const FitOptions& fitOptions() const { return m_fit; }
@@ -691,12 +692,12 @@ class EstimatorBase {
         m_k(sizedFor(k)),
         m_lambda(static_cast<Scalar>(fit.forgetting)),
         m_step(static_cast<Scalar>(fit.forgetting)),
+        m_status(!detail::fitsSize<K, MaxK>(k) ? Status::wrong_size : validate(fit)),
         m_centering(sizedFor(k)),
         m_guard(sizedFor(k)),
         m_work(sizedFor(k)),
         m_row(sizedFor(k) + 1),
         m_solution(sizedFor(k)) {
-    m_status = !detail::fitsSize<K, MaxK>(k) ? Status::wrong_size : validate(fit);
     m_row.setZero();
     if (m_status == Status::ok && fit.outliers.enabled && !Derived::guardable) m_status = Status::invalid_options;
     m_guarded = Derived::guardable && m_status == Status::ok &&
