@@ -12,7 +12,6 @@
 #include "rowfold/detail/target.hpp"
 #include "rowfold/estimator_base.hpp"
 
-
 namespace rowfold {
 
 /// How ForgettingRls starts.
