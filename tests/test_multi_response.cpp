@@ -173,6 +173,11 @@ TEST_CASE("Contract: statuses, all-or-nothing, snapshot round trip") {
     using DynMulti = rowfold::MultiResponse<rowfold::GivensQr<double, Dyn>, Dyn>;
     CHECK(DynMulti(3, 0, rowfold::GivensQrOptions()).status() == Status::wrong_size);
     CHECK(DynMulti(0, 2, rowfold::GivensQrOptions()).status() == Status::wrong_size);
+    // A K above a bounded MaxK: refused with a Status, not Eigen's assertion (counted by the fence).
+    const long hitsBefore = rowfold_test::eigenAssertHits.load();
+    using BoundedMulti = rowfold::MultiResponse<rowfold::GivensQr<double, Dyn, 4>, Dyn>;
+    CHECK(BoundedMulti(6, 2, rowfold::GivensQrOptions()).status() == Status::wrong_size);
+    CHECK(rowfold_test::eigenAssertHits.load() == hitsBefore);
   }
   Stream st;
   for (int i = 0; i < 20; ++i) {

@@ -181,7 +181,7 @@ class MultiResponse {
         m_slopes(dimK(k), dimM(m)),
         m_guard(dimK(k)),
         m_solution(dimK(k)) {
-    if (k <= 0 || m <= 0 || (K != Eigen::Dynamic && k != K) || (M != Eigen::Dynamic && m != M))
+    if (!detail::fitsSize<K, MaxK>(k) || m <= 0 || (M != Eigen::Dynamic && m != M))
       m_status = Status::wrong_size;
     else if (m_joint.status() != Status::ok)
       m_status = m_joint.status();
@@ -452,9 +452,9 @@ class MultiResponse {
 
   static Eigen::Index jointSize(Eigen::Index k, Eigen::Index m) { return kForm == 2 ? k : k + m - 1; }
   // Storage sizes: the compile-time size when there is one (a bad runtime size only sets status()).
-  static Eigen::Index dimK(Eigen::Index k) { return K != Eigen::Dynamic ? K : (k > 0 ? k : 1); }
+  static Eigen::Index dimK(Eigen::Index k) { return detail::storedSize<K, MaxK>(k); }
   static Eigen::Index dimJ(Eigen::Index k, Eigen::Index m) {
-    return KJ != Eigen::Dynamic ? KJ : (jointSize(k, m) > 0 ? jointSize(k, m) : 1);
+    return KJ != Eigen::Dynamic ? KJ : (jointSize(dimK(k), m) > 0 ? jointSize(dimK(k), m) : 1);
   }
   static Eigen::Index dimM(Eigen::Index m) { return M != Eigen::Dynamic ? M : (m > 0 ? m : 1); }
   static Eigen::Index dimX(Eigen::Index m) { return MXS != Eigen::Dynamic ? MXS : (kForm != 1 && m > 1 ? m - 1 : 0); }
