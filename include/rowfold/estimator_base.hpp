@@ -884,8 +884,9 @@ class EstimatorBase {
     detail::putField(h + 32, m_fit.vifLimit);
   }
 
-  /// add() after its dispatch. Guarded = false for the per-size copies, which are reached only
-  /// unguarded (so that they do not instantiate the guarded path as well).
+  /// add() after its dispatch. Guarded = false for the per-size copies of an estimator without
+  /// sizedGuarded, which are reached only unguarded (so that they do not instantiate the
+  /// guarded path as well).
   template <bool Guarded, typename XD>
   EIGEN_ALWAYS_INLINE Status addChecked(const Eigen::MatrixBase<XD>& x, Scalar y, Scalar w) {
     const Status s = check(x, y, w);
