@@ -132,15 +132,16 @@ class BatchQr : public EstimatorBase<BatchQr<Scalar_, K_, Capacity_, MaxK_>, Sca
         m_dx(this->regressors() + 1),
         m_tmp(this->regressors() + 1),
         m_syncRow(this->regressors() + 1) {
-    if (!(m_capacity > 0) || options.refinementSteps < 0) m_badOptions = true;
+    if (!(m_capacity > 0) || options.refinementSteps < 0) {
+      m_badOptions = true;
+      this->refuseOptions();  // status() is then invalid_options
+    }
     m_x.setZero();  // once: nothing reads a slot beyond rows(), but copies copy the whole buffer
     m_y.setZero();
     m_w.setZero();
     clearState();
   }
 
-  /// `invalid_options` for a capacity <= 0 or refinementSteps < 0, else EstimatorBase::status().
-  Status status() const { return m_badOptions ? Status::invalid_options : Base::status(); }
   /// Rows the buffer holds (Capacity, or options.capacity for Eigen::Dynamic).
   Eigen::Index capacity() const { return m_capacity; }
   /// Rows stored now (accepted samples of positive weight since the last reset; with `slide`,
@@ -211,14 +212,25 @@ class BatchQr : public EstimatorBase<BatchQr<Scalar_, K_, Capacity_, MaxK_>, Sca
     push(x.transpose(), y, w);
   }
 
-  /// add()/addRows(): stores the row; its centering step is deferred (syncCentering). A full
-  /// sliding window whose rows are all pending commits them first, before the oldest is
-  /// overwritten.
+  /// add()/addRows(): stores the row, or returns capacity_full when there is no room (add()
+  /// leaves that test to this one compare; addRows() checked room() already). The row's
+  /// centering step is deferred (syncCentering). A full sliding window whose rows are all
+  /// pending commits them first, before the oldest is overwritten.
   template <typename XD>
-  void storeRow(const Eigen::MatrixBase<XD>& x, Scalar y, Scalar w) {
+  Status storeRow(const Eigen::MatrixBase<XD>& x, Scalar y, Scalar w) {
+    if (!(m_n < m_capacity)) return storeInFullBuffer(x, y, w);  // a free slot costs this one test
+    push(x.transpose(), y, w);
+    ++m_pending;
+    return Status::ok;
+  }
+  // Out of line: inlined, its commit loop made every add() save and restore registers.
+  template <typename XD>
+  EIGEN_DONT_INLINE Status storeInFullBuffer(const Eigen::MatrixBase<XD>& x, Scalar y, Scalar w) {
+    if (!m_options.slide || m_badOptions) return Status::capacity_full;
     if (m_pending == m_capacity) syncCentering();
     push(x.transpose(), y, w);
     ++m_pending;
+    return Status::ok;
   }
 
   /// Commits the rows stored since the last commit (the newest m_pending rows, oldest first) to

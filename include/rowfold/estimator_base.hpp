@@ -704,6 +704,14 @@ class EstimatorBase {
                 ((fit.forgetting < 1.0 && fit.windup.enabled) || fit.outliers.enabled);
   }
 
+  /// For an estimator's constructor: its own options are invalid, so status() is
+  /// `invalid_options` from now on (over any other construction status) and nothing folds.
+  /// One status word, so that add() tests one value, not the base's and the estimator's.
+  void refuseOptions() {
+    m_status = Status::invalid_options;
+    m_guarded = false;
+  }
+
   /// The size an estimator's own storage is made with for a constructor's k: k when it fits,
   /// else K (fixed) or 1, so that a bad k only sets `wrong_size` (detail::storedSize).
   static constexpr Eigen::Index sizedFor(Eigen::Index k) { return detail::storedSize<K, MaxK>(k); }
@@ -801,7 +809,8 @@ class EstimatorBase {
   Scalar memoryForget2() const { return m_centering.forgetSum2(); }  ///< F2 remembered (see memoryCount)
 
   /// Estimators whose `deferredCentering` is true (BatchQr: it keeps the raw rows) store a sample
-  /// with `storeRow(x, y, w)` and commit it to the centering later, in `syncCentering() const`,
+  /// with `Status storeRow(x, y, w)` (`capacity_full` when there is no room, else `ok`; add()
+  /// leaves the room test to it) and commit it to the centering later, in `syncCentering() const`,
   /// with the same centeredRow/commitStep operations fold() would have run, in arrival order, so
   /// the record is the eager one (bit for bit without FMA contraction; see
   /// BatchQr::syncCentering). The base calls syncCentering before every read of the
@@ -892,12 +901,17 @@ class EstimatorBase {
     const Status s = check(x, y, w);
     if (s != Status::ok) return s;
     if (w == Scalar(0)) return Status::ok;
-    if (derived().room() == 0) return Status::capacity_full;
-    if constexpr (Guarded) {
-      if (m_guarded) return guardedFold(x, y, w);
+    if constexpr (Derived::deferredCentering) {
+      static_assert(!Derived::guardable, "rowfold: an estimator with deferred centering has no guard");
+      return derived().storeRow(x, y, w);  // tests its own room (capacity_full)
+    } else {
+      if (derived().room() == 0) return Status::capacity_full;
+      if constexpr (Guarded) {
+        if (m_guarded) return guardedFold(x, y, w);
+      }
+      fold(x, y, w, m_lambda);
+      return Status::ok;
     }
-    fold(x, y, w, m_lambda);
-    return Status::ok;
   }
 
   // Runtime K up to the estimator's sizedUpTo: the unguarded add (with sizedGuarded, the
@@ -935,8 +949,8 @@ class EstimatorBase {
     if (x.size() != regressors()) return Status::wrong_size;
     if (!(w >= Scalar(0)) || !std::isfinite(w)) return Status::negative_weight;
     // x * 0 is 0 for finite x and NaN for NaN or Inf: one vectorized pass without early exit
-    // (Eigen's allFinite tests entry by entry).
-    if (!std::isfinite(y) || !allFiniteFast(x)) return Status::nonfinite_input;
+    // (Eigen's allFinite tests entry by entry), y's term added to its sum, so one test.
+    if (!((x.derived().array() * Scalar(0)).sum() + y * Scalar(0) == Scalar(0))) return Status::nonfinite_input;
     return Status::ok;
   }
 
@@ -945,7 +959,9 @@ class EstimatorBase {
   template <typename XD>
   Scalar fold(const Eigen::MatrixBase<XD>& x, Scalar y, Scalar w, Scalar lam) {
     if constexpr (Derived::deferredCentering) {
-      derived().storeRow(x, y, w);  // committed to the centering later, with lambda = lam (unguarded)
+      // Committed to the centering later, with lambda = lam (unguarded); the callers checked
+      // room() for it, so it is stored.
+      static_cast<void>(derived().storeRow(x, y, w));
       return w;  // not the fold weight: deferred estimators have no guard, which alone reads it
     }
     return foldStep(x, y, w, lam, m_centering.centeredRow(x, y, w, lam, m_fit.intercept, m_row));

@@ -112,13 +112,10 @@ class ForgettingRls : public EstimatorBase<ForgettingRls<Scalar_, K_, MaxK_>, Sc
         m_invLambda(Scalar(1) / m_lambdaOption) {
     if (this->status() == Status::ok && options.start == RlsStart::prior &&
         !(options.priorPrecision > 0.0 && std::isfinite(options.priorPrecision)))
-      m_badOptions = true;
+      this->refuseOptions();  // status() is then invalid_options
     clearState();
   }
 
-  /// `invalid_options` for a prior start with priorPrecision not > 0 and finite, else
-  /// EstimatorBase::status().
-  Status status() const { return m_badOptions ? Status::invalid_options : Base::status(); }
   /// True once P and theta are being updated recursively (after the exact start).
   bool recursive() const { return m_recursive; }
   /// P = (X~'X~)^-1, meaningful when recursive(). The lower triangle is always valid; the
@@ -145,9 +142,7 @@ class ForgettingRls : public EstimatorBase<ForgettingRls<Scalar_, K_, MaxK_>, Sc
   }
 
  private:
-  std::uint64_t room() const {
-    return m_badOptions ? 0 : std::numeric_limits<std::uint64_t>::max();
-  }
+  std::uint64_t room() const { return std::numeric_limits<std::uint64_t>::max(); }
 
   void clearState() {
     const Eigen::Index k = this->regressors();
@@ -562,7 +557,6 @@ class ForgettingRls : public EstimatorBase<ForgettingRls<Scalar_, K_, MaxK_>, Sc
   Scalar m_sse = 0;
   bool m_recursive = false;
   bool m_lost = false;
-  bool m_badOptions = false;
 };
 
 }  // namespace rowfold
