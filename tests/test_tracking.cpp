@@ -375,8 +375,9 @@ struct TypeAt {
 // for K (EstimatorBase::addSized: NormalEquations, GivensQr, ForgettingRls), and K = 9
 // runtime-length loops (so K = 9 compares the loops of compile-time and of runtime length).
 // All fold the same operations in the same order, so one stream given as fixed-size vectors
-// and as runtime-length ones must give the same bits (for every estimator, K = 3 and 9). The
-// test fails when the copy alone scales y by 1.0001 (tried on NormalEquations and GivensQr).
+// and as runtime-length ones (contiguous, and a strided row of a table) must give the same
+// bits (for every estimator, K = 3 and 9). The test fails when the copy alone scales y by
+// 1.0001 (tried on NormalEquations and GivensQr).
 TEST_CASE_TEMPLATE("a runtime K folds the same bits from x of fixed and of runtime length", P,
                    TypeAt<rowfold::NormalEquations<double, Eigen::Dynamic>, 3>,
                    TypeAt<rowfold::NormalEquations<float, Eigen::Dynamic>, 9>,
@@ -393,20 +394,26 @@ TEST_CASE_TEMPLATE("a runtime K folds the same bits from x of fixed and of runti
     CAPTURE(lambda);
     typename E::Options options;
     options.forgetting = lambda;
-    E sized(k, options), runtime(k, options);
+    E sized(k, options), runtime(k, options), strided(k, options);
     std::mt19937_64 rng(11);
     std::normal_distribution<double> n01(0, 1);
+    // A row of a column-major matrix: x of runtime length whose entries are not adjacent (the
+    // copies take it as a block, a contiguous x as a pointer).
+    Eigen::Matrix<S, Eigen::Dynamic, Eigen::Dynamic> table = Eigen::Matrix<S, Eigen::Dynamic, Eigen::Dynamic>::Zero(2, k);
     for (int i = 0; i < 1000; ++i) {
       Eigen::Matrix<S, k, 1> x;
       for (int j = 0; j < k; ++j) x(j) = S(j + n01(rng));
       const S y = x.sum() + S(0.1 * n01(rng));
       const Eigen::Matrix<S, Eigen::Dynamic, 1> xr = x;
+      table.row(1) = x.transpose();
       REQUIRE(sized.add(x, y) == Status::ok);
       REQUIRE(runtime.add(xr, y) == Status::ok);
+      REQUIRE(strided.add(table.row(1).transpose(), y) == Status::ok);
     }
-    const auto a = sized.solve(), b = runtime.solve();
+    const auto a = sized.solve(), b = runtime.solve(), c = strided.solve();
     REQUIRE(a.status == Status::ok);
     REQUIRE(b.status == Status::ok);
+    REQUIRE(c.status == Status::ok);
     // Bit for bit on x86-64. aarch64 g++ fuses multiply-adds as its inlining allows: one
     // build of this test had NormalEquations' K = 3 paths (lambda = 1) apart in the last
     // bits, the next build (one line added here) identical (qemu-aarch64, 2026-12-05). There,
@@ -423,8 +430,11 @@ TEST_CASE_TEMPLATE("a runtime K folds the same bits from x of fixed and of runti
 #endif
     };
     for (int j = 0; j < k; ++j) CHECK(same(a.coefficients(j), b.coefficients(j), S(64)));
+    for (int j = 0; j < k; ++j) CHECK(same(a.coefficients(j), c.coefficients(j), S(64)));
     CHECK(same(a.intercept, b.intercept, S(64)));
+    CHECK(same(a.intercept, c.intercept, S(64)));
     CHECK(same(sized.summarize().residualStandardError, runtime.summarize().residualStandardError, S(4096)));
+    CHECK(same(sized.summarize().residualStandardError, strided.summarize().residualStandardError, S(4096)));
   }
 }
 

@@ -102,6 +102,7 @@ class BatchQr : public EstimatorBase<BatchQr<Scalar_, K_, Capacity_, MaxK_>, Sca
   /// add() only stores the row; the centering record catches up from the stored rows when it is
   /// read (see syncCentering).
   static constexpr bool deferredCentering = true;
+  static constexpr int sizedUpTo = 8;  ///< per-size copies of add for a runtime K up to 8 (EstimatorBase::addSized)
   /// Stored regressors, capacity x K, one row per sample (row-major, so that storing a sample
   /// writes K adjacent scalars; inline storage for a fixed Capacity and K).
   using RowMatrix = Eigen::Matrix<Scalar, Eigen::Dynamic, K_, (K_ == 1 ? Eigen::ColMajor : Eigen::RowMajor), Capacity_, MaxK_>;
@@ -267,7 +268,7 @@ class BatchQr : public EstimatorBase<BatchQr<Scalar_, K_, Capacity_, MaxK_>, Sca
       at = m_head;
       m_head = m_head + 1 == m_capacity ? 0 : m_head + 1;
     }
-    m_x.row(at) = xRow;
+    detail::sizedAs<int(RD::SizeAtCompileTime)>(m_x.row(at)) = xRow;  // add()'s copies: a fixed-length store
     m_y(at) = y;
     m_w(at) = w;
   }

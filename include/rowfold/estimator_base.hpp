@@ -72,8 +72,9 @@ struct SizedGuarded<D, std::void_t<decltype(D::sizedGuarded)>> : std::bool_const
 ///   measured slower (NormalEquations, portable, double, runtime K = 32 / 64: 143-148 / 451-454
 ///   ns per sample in the old order, 166-168 / 476-489 in this one);
 /// - optionally `static constexpr int sizedUpTo = N`: with a runtime K <= N, the unguarded
-///   add() runs a copy of its path compiled for that K, handing foldRow x as a fixed-size block
-///   (foldRow reads the length from x's type, detail::viewSize). None on Cortex-M (flash);
+///   add() runs a copy of its path compiled for that K, handing foldRow x as a vector of
+///   fixed size (a Map of a contiguous x, else a block; foldRow reads the length from x's
+///   type, detail::viewSize). None on Cortex-M (flash);
 ///   with `static constexpr bool sizedGuarded = true` as well, the copies include the guarded
 ///   path (priorInfo<KV> then gets the length too);
 /// - optionally `void foldRows(X, y, w)`: fold validated rows (w == nullptr: unit weights) in
@@ -208,7 +209,10 @@ class EstimatorBase {
     if constexpr (kSizedUpTo > 0 && XD::SizeAtCompileTime == Eigen::Dynamic) {  // a fixed-size x is sized already
       if ((kSizedGuarded || !m_guarded) && x.size() <= kSizedUpTo && x.size() == regressors())
         return addSized(x, y, w, std::make_integer_sequence<int, kSizedUpTo>{});
-      return addRuntime(x, y, w);
+      if constexpr (Derived::deferredCentering)  // a store (BatchQr): a call would cost more than it
+        return addChecked<true>(x, y, w);
+      else
+        return addRuntime(x, y, w);
     } else {
       return addChecked<true>(x, y, w);
     }
@@ -934,8 +938,24 @@ class EstimatorBase {
   // whatever function the caller's add() is inlined into. Inline, their speed moved with the
   // surroundings: the update bench's runtime K = 32 (double) took 173-176 ns per sample
   // instead of 137, a timing program's copy for K = 8 37 ns instead of 25.
+  // A contiguous x reaches its copy as a pointer, in a register. Given by reference, an
+  // expression the caller had just built (a Map: pointer and size, two stores) was read back
+  // with one 16-byte load, which store forwarding cannot serve: BatchQr, runtime K = 2,
+  // double, took 9.1 ns per sample so (update bench), half of the copy's samples on that load.
+  // One copy per length then serves every contiguous type of x, too.
   template <int N, typename XD>
-  EIGEN_DONT_INLINE Status addAs(const Eigen::MatrixBase<XD>& x, Scalar y, Scalar w) {
+  EIGEN_ALWAYS_INLINE Status addAs(const Eigen::MatrixBase<XD>& x, Scalar y, Scalar w) {
+    if constexpr ((int(XD::Flags) & Eigen::DirectAccessBit) != 0 && int(XD::InnerStrideAtCompileTime) == 1)
+      return addAt<N>(x.derived().data(), y, w);
+    else
+      return addBlock<N>(x, y, w);
+  }
+  template <int N>
+  EIGEN_DONT_INLINE Status addAt(const Scalar* x, Scalar y, Scalar w) {
+    return addChecked<kSizedGuarded>(Eigen::Map<const Eigen::Matrix<Scalar, N, 1>>(x), y, w);
+  }
+  template <int N, typename XD>
+  EIGEN_DONT_INLINE Status addBlock(const Eigen::MatrixBase<XD>& x, Scalar y, Scalar w) {
     return addChecked<kSizedGuarded>(x.template head<N>(), y, w);
   }
   template <typename XD>
