@@ -925,7 +925,9 @@ class EstimatorBase {
   // inert guard" and "a runtime K folds the same bits"). NormalEquations, native update bench,
   // double, runtime K = 2 / 4 / 8: 19.0 / 25.4 / 35.0 -> 9.2 / 13.4 / 22.9 ns per sample
   // (bench/README, per-size round).
-  static constexpr int kSizedUpTo = K == Eigen::Dynamic && !detail::kMicrocontroller ? detail::SizedUpTo<Derived>::value : 0;
+  static constexpr int kSizedUpTo = K != Eigen::Dynamic || detail::kMicrocontroller ? 0
+                                    : detail::SizedUpTo<Derived>::value < detail::kSizedCap ? detail::SizedUpTo<Derived>::value
+                                                                                           : detail::kSizedCap;
   // The copies include the guarded path too: each copy then carries it (compile time, code).
   static constexpr bool kSizedGuarded = detail::SizedGuarded<Derived>::value;
   template <typename XD, int... N>
