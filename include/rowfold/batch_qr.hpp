@@ -133,10 +133,7 @@ class BatchQr : public EstimatorBase<BatchQr<Scalar_, K_, Capacity_, MaxK_>, Sca
         m_dx(this->regressors() + 1),
         m_tmp(this->regressors() + 1),
         m_syncRow(this->regressors() + 1) {
-    if (!(m_capacity > 0) || options.refinementSteps < 0) {
-      m_badOptions = true;
-      this->refuseOptions();  // status() is then invalid_options
-    }
+    if (!(m_capacity > 0) || options.refinementSteps < 0) this->refuseOptions();  // status() is then invalid_options
     m_x.setZero();  // once: nothing reads a slot beyond rows(), but copies copy the whole buffer
     m_y.setZero();
     m_w.setZero();
@@ -156,7 +153,7 @@ class BatchQr : public EstimatorBase<BatchQr<Scalar_, K_, Capacity_, MaxK_>, Sca
 
  private:
   std::uint64_t room() const {
-    if (m_badOptions) return 0;
+    if (this->status() != Status::ok) return 0;
     return m_options.slide ? std::numeric_limits<std::uint64_t>::max() : static_cast<std::uint64_t>(m_capacity - m_n);
   }
   void clearState() {
@@ -227,7 +224,7 @@ class BatchQr : public EstimatorBase<BatchQr<Scalar_, K_, Capacity_, MaxK_>, Sca
   // Out of line: inlined, its commit loop made every add() save and restore registers.
   template <typename XD>
   EIGEN_DONT_INLINE Status storeInFullBuffer(const Eigen::MatrixBase<XD>& x, Scalar y, Scalar w) {
-    if (!m_options.slide || m_badOptions) return Status::capacity_full;
+    if (!m_options.slide || this->status() != Status::ok) return Status::capacity_full;
     if (m_pending == m_capacity) syncCentering();
     push(x.transpose(), y, w);
     ++m_pending;
@@ -524,7 +521,6 @@ class BatchQr : public EstimatorBase<BatchQr<Scalar_, K_, Capacity_, MaxK_>, Sca
   mutable Vector1 m_syncRow;  // syncCentering's centered row
   mutable Eigen::Index m_offset = 1;
   mutable int m_sweeps = 0;
-  bool m_badOptions = false;
 };
 
 }  // namespace rowfold

@@ -3,6 +3,7 @@
 #pragma once
 
 #include <Eigen/Core>
+#include <algorithm>
 #include <cmath>
 #include <cstring>
 #include <limits>
@@ -925,9 +926,8 @@ class EstimatorBase {
   // inert guard" and "a runtime K folds the same bits"). NormalEquations, native update bench,
   // double, runtime K = 2 / 4 / 8: 19.0 / 25.4 / 35.0 -> 9.2 / 13.4 / 22.9 ns per sample
   // (bench/README, per-size round).
-  static constexpr int kSizedUpTo = K != Eigen::Dynamic || detail::kMicrocontroller ? 0
-                                    : detail::SizedUpTo<Derived>::value < detail::kSizedCap ? detail::SizedUpTo<Derived>::value
-                                                                                           : detail::kSizedCap;
+  static constexpr int kSizedUpTo =
+      K != Eigen::Dynamic || detail::kMicrocontroller ? 0 : std::min(detail::SizedUpTo<Derived>::value, detail::kSizedCap);
   // The copies include the guarded path too: each copy then carries it (compile time, code).
   static constexpr bool kSizedGuarded = detail::SizedGuarded<Derived>::value;
   template <typename XD, int... N>
@@ -972,7 +972,7 @@ class EstimatorBase {
     if (!(w >= Scalar(0)) || !std::isfinite(w)) return Status::negative_weight;
     // x * 0 is 0 for finite x and NaN for NaN or Inf: one vectorized pass without early exit
     // (Eigen's allFinite tests entry by entry), y's term added to its sum, so one test.
-    if (!((x.derived().array() * Scalar(0)).sum() + y * Scalar(0) == Scalar(0))) return Status::nonfinite_input;
+    if (!(zeroIfFinite(x) + y * Scalar(0) == Scalar(0))) return Status::nonfinite_input;
     return Status::ok;
   }
 
@@ -1222,7 +1222,12 @@ class EstimatorBase {
   template <typename MD>
   static bool allFiniteFast(const Eigen::MatrixBase<MD>& m) {
     using S = typename MD::Scalar;
-    return m.size() == 0 || (m.derived().array() * S(0)).sum() == S(0);
+    return m.size() == 0 || zeroIfFinite(m) == S(0);
+  }
+  /// 0 if every entry of m is finite, NaN otherwise (sum of m * 0).
+  template <typename MD>
+  static typename MD::Scalar zeroIfFinite(const Eigen::MatrixBase<MD>& m) {
+    return (m.derived().array() * typename MD::Scalar(0)).sum();
   }
 
   /// True if rows [from, to) of X, y (and w) are finite and no weight is negative: one
