@@ -98,9 +98,9 @@ class Centering {
   /// Writes d = [x - xbar, y - ybar] (or [x, y] without intercept) into `row` and returns its
   /// weight delta and the mean step, without changing the state. One division, no square root.
   /// With a runtime K and a fixed-size x, the loops have x's length (detail::viewSize).
-  template <typename XD, typename Row>
+  template <typename XD>
   Step centeredRow(const Eigen::MatrixBase<XD>& x, Scalar y, Scalar w, Scalar lambda, Intercept mode,
-                   Row& row) const {
+                   Vector1& row) const {
     constexpr int KV = detail::viewSize<K, XD>;
     const Eigen::Index k = m_xbar.size();
     const Scalar aged = lambda * m_weight;
@@ -119,8 +119,8 @@ class Centering {
 
   /// Commits a sample prepared by `centeredRow` (`row` still holds its d). KV: the length
   /// centeredRow used (K, or with a runtime K that of its x).
-  template <int KV = K, typename Row = Vector1>
-  void commitStep(const Step& st, Scalar lambda, Intercept mode, const Row& row) {
+  template <int KV = K>
+  void commitStep(const Step& st, Scalar lambda, Intercept mode, const Vector1& row) {
     const Eigen::Index k = m_xbar.size();
     if (mode == Intercept::fit) {
       detail::sizedAs<KV>(m_xbar) += st.share * detail::headOf<KV>(row, k);

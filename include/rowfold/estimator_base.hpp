@@ -71,8 +71,7 @@ struct SizedGuarded<D, std::void_t<decltype(D::sizedGuarded)>> : std::bool_const
 ///   shorter chain from one sample to the next). Done where the loops have a compile-time
 ///   length (fixed K, or the per-size copies below): with runtime-length loops that order
 ///   measured slower (NormalEquations, portable, double, runtime K = 32 / 64: 143-148 / 451-454
-///   ns per sample in the old order, 166-168 / 476-489 in this one). With a fixed K it also hands foldRow
-///   d as a local fixed-size vector, not m_row, so foldRow takes d as a template argument;
+///   ns per sample in the old order, 166-168 / 476-489 in this one);
 /// - optionally `static constexpr int sizedUpTo = N`: with a runtime K <= N, the unguarded
 ///   add() runs a copy of its path compiled for that K, handing foldRow x as a vector of
 ///   fixed size (a Map of a contiguous x, else a block; foldRow reads the length from x's
@@ -986,22 +985,6 @@ class EstimatorBase {
       // room() for it, so it is stored.
       static_cast<void>(derived().storeRow(x, y, w));
       return w;  // not the fold weight: deferred estimators have no guard, which alone reads it
-    }
-    if constexpr (detail::CenteringFirst<Derived>::value && K != Eigen::Dynamic) {
-      // d in a local, which the compiler keeps in registers: written to m_row (a member) and
-      // read back at once in another vector shape, it waited on a failed store forwarding
-      // (NormalEquations, native, fixed K = 3, float: 10.4-10.7 -> 5.3-5.7 ns per sample; K = 8
-      // 7 % less, double and float; timing program, bench/README). m_row gets d afterwards
-      // for the guard. Not for a runtime K's copies: there the local measured slower at
-      // K = 3 and 4 (its u went to the stack in halves and came back whole).
-      Eigen::Matrix<Scalar, Dims::K1, 1> d;
-      const auto step = m_centering.centeredRow(x, y, w, lam, m_fit.intercept, d);
-      m_step = lam;
-      m_centering.commitStep(step, lam, m_fit.intercept, d);
-      derived().foldRow(x, y, w, d, step.delta);
-      m_step = m_lambda;
-      m_row = d;
-      return step.delta;
     }
     return foldStep(x, y, w, lam, m_centering.centeredRow(x, y, w, lam, m_fit.intercept, m_row));
   }

@@ -127,18 +127,18 @@ class NormalEquations : public EstimatorBase<NormalEquations<Scalar_, K_, MaxK_>
   static constexpr int kSmallK = 4;  // up to this K: the fold inlined, and a copy's u in a local (below)
   template <int KV>
   static constexpr bool kInlineFold = KV != Eigen::Dynamic && KV <= kSmallK && !detail::kMicrocontroller;
-  template <typename XD, typename Row, bool I = kInlineFold<detail::viewSize<K_, XD>>, std::enable_if_t<I, int> = 0>
-  EIGEN_ALWAYS_INLINE void foldRow(const Eigen::MatrixBase<XD>&, Scalar, Scalar, const Row& d, Scalar delta) {
+  template <typename XD, bool I = kInlineFold<detail::viewSize<K_, XD>>, std::enable_if_t<I, int> = 0>
+  EIGEN_ALWAYS_INLINE void foldRow(const Eigen::MatrixBase<XD>&, Scalar, Scalar, const Vector1& d, Scalar delta) {
     foldCentered<detail::viewSize<K_, XD>>(d, delta);
   }
-  template <typename XD, typename Row, bool I = kInlineFold<detail::viewSize<K_, XD>>, std::enable_if_t<!I, int> = 0>
-  void foldRow(const Eigen::MatrixBase<XD>&, Scalar, Scalar, const Row& d, Scalar delta) {
+  template <typename XD, bool I = kInlineFold<detail::viewSize<K_, XD>>, std::enable_if_t<!I, int> = 0>
+  void foldRow(const Eigen::MatrixBase<XD>&, Scalar, Scalar, const Vector1& d, Scalar delta) {
     foldCentered<detail::viewSize<K_, XD>>(d, delta);
   }
 
   /// G <- lambda G + delta d d' (lower triangle), loops of length KV + 1.
-  template <int KV, typename Row>
-  EIGEN_ALWAYS_INLINE void foldCentered(const Row& d, Scalar delta) {
+  template <int KV>
+  EIGEN_ALWAYS_INLINE void foldCentered(const Vector1& d, Scalar delta) {
     constexpr int N = detail::plusOne(KV);
     const Scalar lambda = this->lambda();
     const Eigen::Index n = m_gram.cols();
