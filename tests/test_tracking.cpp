@@ -376,11 +376,13 @@ struct TypeAt {
 // K = 9 (NormalEquations: 17) runtime-length loops (so these compare the loops of
 // compile-time and of runtime length). All fold the same operations in the same order, so one
 // stream given as fixed-size vectors and as runtime-length ones (contiguous, and a strided row
-// of a table) must give the same bits (for every estimator, K = 3 and 9 or 17). The test
-// fails when the copy alone scales y by 1.0001 (tried on NormalEquations and GivensQr).
+// of a table) must give the same bits (for every estimator, K = 3 and 9 or 17; and 12, a
+// NormalEquations copy above 8). The test fails when the copy alone scales y by 1.0001
+// (tried on NormalEquations and GivensQr).
 TEST_CASE_TEMPLATE("a runtime K folds the same bits from x of fixed and of runtime length", P,
                    TypeAt<rowfold::NormalEquations<double, Eigen::Dynamic>, 3>,
                    TypeAt<rowfold::NormalEquations<float, Eigen::Dynamic>, 17>,
+                   TypeAt<rowfold::NormalEquations<double, Eigen::Dynamic>, 12>,
                    TypeAt<rowfold::GivensQr<float, Eigen::Dynamic>, 3>,
                    TypeAt<rowfold::GivensQr<double, Eigen::Dynamic>, 9>,
                    TypeAt<rowfold::ForgettingRls<double, Eigen::Dynamic>, 3>,
