@@ -7,6 +7,7 @@
 #include <cstdint>
 
 #include "rowfold/detail/dims.hpp"
+#include "rowfold/detail/lone_load.hpp"
 #include "rowfold/options.hpp"
 
 namespace rowfold {
@@ -111,7 +112,10 @@ class Centering {
       return Step{w, Scalar(0), wNew};
     }
     detail::headOf<KV>(row, k) = x - detail::sizedAs<KV>(m_xbar);
-    row(k) = y - loadAlone(m_ybar);
+    // ybar with a load of its own: g++ read it and the last mean of x (the member before it)
+    // with one load, which the two stores of the previous commitStep could not forward to
+    // (NormalEquations, float, K = 2, native update bench: 7.7-7.9 -> 5.6-5.7 ns per sample).
+    row(k) = y - detail::loadAlone(m_ybar);
     // Two independent divisions (not a reciprocal and products): one rounding each, which the
     // cross-product forms notice on exact-fit data (NIST Wampler1).
     return Step{w * (aged / wNew), w / wNew, wNew};
@@ -321,14 +325,6 @@ class Centering {
   std::uint64_t count() const { return m_count; }
 
  private:
-  // A load of v that the compiler cannot merge with a load of its neighbour. g++'s SLP
-  // vectorizer read the last mean of x and ybar (adjacent members) with one 8-byte load in
-  // centeredRow, while commitStep stores them apart: the previous sample's two stores cannot
-  // forward to it, and the load waits for both to retire. NormalEquations, float, K = 2,
-  // native update bench: 7.7-7.9 -> 5.6-5.7 ns per sample (bench/README, lone-load round).
-  // The value is the same; only the access is kept whole.
-  static Scalar loadAlone(const Scalar& v) { return *static_cast<const volatile Scalar*>(&v); }
-
   // Order matters for add's speed. A compiler may merge the stores of neighbouring members
   // into one vector store, which is complete only when its last lane is. The next sample's
   // W = lambda W + w must not wait for the division behind Syy and the means (commitStep):

@@ -8,6 +8,7 @@
 
 #include "rowfold/detail/cholesky.hpp"
 #include "rowfold/detail/gram_block.hpp"
+#include "rowfold/detail/lone_load.hpp"
 #include "rowfold/detail/target.hpp"
 #include "rowfold/estimator_base.hpp"
 
@@ -144,14 +145,12 @@ class NormalEquations : public EstimatorBase<NormalEquations<Scalar_, K_, MaxK_>
     const Eigen::Index n = m_gram.cols();
     // u = sqrt(delta) d, G += u u': the rounding of the symmetric square-root form, which keeps
     // about a digit more than delta d_i d_j on exact-fit data (NIST Wampler1: 7.8 vs 6.5).
-    // A runtime K's copy for KV <= 4: u in a local, which the compiler keeps in registers (the
-    // member m_u lives on the heap there, and the fold read back what had just been stored:
-    // timing program, native, runtime K = 2, double 9.3-9.7 -> 8.8-9.3 ns per sample, float
-    // 10.6 -> 10.0-11.0). At K = 8 the local measured slower (double 22.6-23.1 -> 34.6-35.2).
+    // A runtime K's copy for KV <= 4: u in scalars, never in memory (rank1Scalars). The
+    // member m_u lives on the heap there, and the fold read back what had just been stored.
+    // At K = 8 a local u measured slower (double 22.6-23.1 -> 34.6-35.2 ns per sample).
     if constexpr (KV != Eigen::Dynamic && KV <= kSmallK && K_ == Eigen::Dynamic) {
       if (lambda == Scalar(1)) {
-        const Eigen::Matrix<Scalar, N, 1> u = std::sqrt(delta) * d.template head<N>();
-        rank1Unrolled<N>(u.data(), std::make_integer_sequence<int, N>{});
+        rank1Scalars<N>(d.data(), std::sqrt(delta), std::make_integer_sequence<int, N>{});
         return;
       }
     }
@@ -196,6 +195,22 @@ class NormalEquations : public EstimatorBase<NormalEquations<Scalar_, K_, MaxK_>
   // loops above keep one choice. g + a v has one fused form only. The column is written again
   // here rather than shared with the runtime loops: a helper with runtime index arguments
   // (constants once inlined) measured 5-15 % slower at fixed K = 16 and 32.
+  // The same update for a runtime K's copy with N <= kSmallK + 1, u = r d in scalars: each
+  // d_i read with a load of its own, every product written out, no loop and no pointer to u.
+  // d was stored in two parts (its first N - 1 entries, then the last), and g++ read it, or a
+  // local u it had stored entry by entry, with wider loads that those stores could not
+  // forward to (perf annotate: half of the copy's samples on one such load). Same operations
+  // as rank1Unrolled on m_u, so the same bits (tests/test_tracking.cpp).
+  template <int N, int... I>
+  EIGEN_ALWAYS_INLINE void rank1Scalars(const Scalar* d, Scalar r, std::integer_sequence<int, I...>) {
+    const Scalar u[N] = {(r * detail::loadAlone(d[I]))...};
+    Scalar* const g = m_gram.data();
+    (rank1ColumnScalars<N, I>(g, u, std::make_integer_sequence<int, N - I>{}), ...);
+  }
+  template <int N, int J, int... T>
+  static EIGEN_ALWAYS_INLINE void rank1ColumnScalars(Scalar* g, const Scalar (&u)[N], std::integer_sequence<int, T...>) {
+    ((g[J * N + J + T] += u[J] * u[J + T]), ...);
+  }
   template <int N, int... J>
   EIGEN_ALWAYS_INLINE void rank1Unrolled(const Scalar* __restrict v, std::integer_sequence<int, J...>) {
     Scalar* const g = m_gram.data();
