@@ -145,10 +145,14 @@ class NormalEquations : public EstimatorBase<NormalEquations<Scalar_, K_, MaxK_>
     const Eigen::Index n = m_gram.cols();
     // u = sqrt(delta) d, G += u u': the rounding of the symmetric square-root form, which keeps
     // about a digit more than delta d_i d_j on exact-fit data (NIST Wampler1: 7.8 vs 6.5).
-    // A runtime K's copy for KV <= 4: u in scalars, never in memory (rank1Scalars). The
-    // member m_u lives on the heap there, and the fold read back what had just been stored.
-    // At K = 8 a local u measured slower (double 22.6-23.1 -> 34.6-35.2 ns per sample).
-    if constexpr (KV != Eigen::Dynamic && KV <= kSmallK && K_ == Eigen::Dynamic) {
+    // A runtime K's copy for KV <= 4, and a fixed K = 3: u in scalars, never in memory
+    // (rank1Scalars). In the copy the member m_u lives on the heap, and the fold read back
+    // what had just been stored. With a fixed K = 3, d's first three entries (one vector and
+    // a scalar) and its last were stored apart and read back as one vector of four (timing
+    // program, native: double 11.4-11.6 -> 7.0-7.2 ns per sample, float 10.3-10.6 -> 6.9;
+    // K = 2 and 4, whose stores match the loads, unchanged). At K = 8 a local u measured
+    // slower (double 22.6-23.1 -> 34.6-35.2 ns per sample).
+    if constexpr (KV != Eigen::Dynamic && KV <= kSmallK && (K_ == Eigen::Dynamic || KV == 3)) {
       if (lambda == Scalar(1)) {
         rank1Scalars<N>(d.data(), std::sqrt(delta), std::make_integer_sequence<int, N>{});
         return;
