@@ -8,6 +8,7 @@
 
 #include "rowfold/detail/givens.hpp"
 #include "rowfold/detail/householder_block.hpp"
+#include "rowfold/detail/lone_load.hpp"
 #include "rowfold/detail/row_block.hpp"
 #include "rowfold/estimator_base.hpp"
 
@@ -347,7 +348,11 @@ class GivensQr : public EstimatorBase<GivensQr<Scalar_, K_, MaxK_>, Scalar_, K_,
     const Eigen::Index n = m_state.rows();
     const Eigen::Index ns = m_state.cols();  // row stride (padded)
     constexpr Scalar kMax = std::numeric_limits<Scalar>::max();
-    m_x.head(n) = d;
+    if constexpr (kLoneRowCopy) {
+      for (Eigen::Index i = 0; i < n; ++i) m_x(i) = detail::loadAlone(d(i));
+    } else {
+      m_x.head(n) = d;
+    }
     if (!(deltaIn > Scalar(0))) {
       ageDiagonal(0, lambda);  // nothing to fold (first centered sample)
       return;
@@ -564,6 +569,14 @@ class GivensQr : public EstimatorBase<GivensQr<Scalar_, K_, MaxK_>, Scalar_, K_,
     r = cbar >= kCbarSplit ? ro + sbar * x : cbar * ro + sbar * xo;
   }
 
+  // d (m_row) is stored as x's K entries, then y's, and copied to m_x as K + 1 entries. For a
+  // fixed K of 3, 5, 6 or 7 the copy's vector loads did not line up with those stores and
+  // waited for them to leave the core; entry by entry they are served at once (timing
+  // program, native, ns per sample, double K = 3 / 5 / 6 / 7: 24-26 / 34 / 35-37 / 60-62 ->
+  // 21-22 / 29 / 30-31 / 51-53, float 23 / 24-26 / 30 / 35-36 -> 18 / 24-26 / 28 / 31-32).
+  // Not for the powers of two, which line up (double K = 8 and 16: 63 / 91-94 -> 66-67 /
+  // 106-111 entry by entry), nor above 8 (double K = 12: 76-78 -> 84-86).
+  static constexpr bool kLoneRowCopy = K_ != Eigen::Dynamic && K_ <= 8 && (K_ & (K_ - 1)) != 0;
   static constexpr Eigen::Index kRowBlock = 4;
   // addRows: from this many columns (K + 1) on, a block is folded row-major in panels
   // (foldRowsHouseholder). Measured with 64-row blocks, double, against the column-major form:
