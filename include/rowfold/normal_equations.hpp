@@ -199,22 +199,6 @@ class NormalEquations : public EstimatorBase<NormalEquations<Scalar_, K_, MaxK_>
   // loops above keep one choice. g + a v has one fused form only. The column is written again
   // here rather than shared with the runtime loops: a helper with runtime index arguments
   // (constants once inlined) measured 5-15 % slower at fixed K = 16 and 32.
-  // The same update for a runtime K's copy with N <= kSmallK + 1, u = r d in scalars: each
-  // d_i read with a load of its own, every product written out, no loop and no pointer to u.
-  // d was stored in two parts (its first N - 1 entries, then the last), and g++ read it, or a
-  // local u it had stored entry by entry, with wider loads that those stores could not
-  // forward to (perf annotate: half of the copy's samples on one such load). Same operations
-  // as rank1Unrolled on m_u, so the same bits (tests/test_tracking.cpp).
-  template <int N, int... I>
-  EIGEN_ALWAYS_INLINE void rank1Scalars(const Scalar* d, Scalar r, std::integer_sequence<int, I...>) {
-    const Scalar u[N] = {(r * detail::loadAlone(d[I]))...};
-    Scalar* const g = m_gram.data();
-    (rank1ColumnScalars<N, I>(g, u, std::make_integer_sequence<int, N - I>{}), ...);
-  }
-  template <int N, int J, int... T>
-  static EIGEN_ALWAYS_INLINE void rank1ColumnScalars(Scalar* g, const Scalar (&u)[N], std::integer_sequence<int, T...>) {
-    ((g[J * N + J + T] += u[J] * u[J + T]), ...);
-  }
   template <int N, int... J>
   EIGEN_ALWAYS_INLINE void rank1Unrolled(const Scalar* __restrict v, std::integer_sequence<int, J...>) {
     Scalar* const g = m_gram.data();
@@ -225,6 +209,24 @@ class NormalEquations : public EstimatorBase<NormalEquations<Scalar_, K_, MaxK_>
     Scalar* __restrict gj = g + J * N;
     const Scalar a = v[J];
     for (int i = J; i < N; ++i) gj[i] += a * v[i];
+  }
+
+  // The same update with u = r d in scalars, for a runtime K's copy with N <= kSmallK + 1 and
+  // a fixed K = 3 (foldCentered): each d_i read with a load of its own, every product written
+  // out, no loop and no pointer to u. d was stored in two parts (its first N - 1 entries,
+  // then the last), and g++ read it, or a local u it had stored entry by entry, with wider
+  // loads that those stores could not forward to (perf annotate, runtime K = 2, float: a
+  // quarter of the copy's samples on one such load). Same operations as rank1Unrolled on
+  // m_u, so the same bits (tests/test_tracking.cpp).
+  template <int N, int... I>
+  EIGEN_ALWAYS_INLINE void rank1Scalars(const Scalar* d, Scalar r, std::integer_sequence<int, I...>) {
+    const Scalar u[N] = {(r * detail::loadAlone(d[I]))...};
+    Scalar* const g = m_gram.data();
+    (rank1ColumnScalars<N, I>(g, u, std::make_integer_sequence<int, N - I>{}), ...);
+  }
+  template <int N, int J, int... T>
+  static EIGEN_ALWAYS_INLINE void rank1ColumnScalars(Scalar* g, const Scalar (&u)[N], std::integer_sequence<int, T...>) {
+    ((g[J * N + J + T] += u[J] * u[J + T]), ...);
   }
 
   /// One-pass addRows (sizes checked, guards off; see the class comment): the Status of the
