@@ -348,7 +348,7 @@ class GivensQr : public EstimatorBase<GivensQr<Scalar_, K_, MaxK_>, Scalar_, K_,
     const Eigen::Index n = m_state.rows();
     const Eigen::Index ns = m_state.cols();  // row stride (padded)
     constexpr Scalar kMax = std::numeric_limits<Scalar>::max();
-    if constexpr (kLoneRowCopy) {
+    if (kLoneRowCopy || (K_ == Eigen::Dynamic && n <= kLoneRowCopyUpTo)) {
       for (Eigen::Index i = 0; i < n; ++i) m_x(i) = detail::loadAlone(d(i));
     } else {
       m_x.head(n) = d;
@@ -575,8 +575,12 @@ class GivensQr : public EstimatorBase<GivensQr<Scalar_, K_, MaxK_>, Scalar_, K_,
   // program, native, ns per sample, double K = 3 / 5 / 6 / 7: 24-26 / 34 / 35-37 / 60-62 ->
   // 21-22 / 29 / 30-31 / 51-53, float 23 / 24-26 / 30 / 35-36 -> 18 / 24-26 / 28 / 31-32).
   // Not for the powers of two, which line up (double K = 8 and 16: 63 / 91-94 -> 66-67 /
-  // 106-111 entry by entry), nor above 8 (double K = 12: 76-78 -> 84-86).
+  // 106-111 entry by entry), nor above 8 (double K = 12: 76-78 -> 84-86). With a runtime K
+  // (its copy's length known only at run time here), entry by entry up to K + 1 = 8: runtime
+  // K = 3 / 6, double 27-28 / 42-44 -> 21-22 / 36-38, float 26 / 34-35 -> 21 / 33; K = 2 and 4
+  // 2-5 % less; K = 8 double 60-62 -> 70 and 16 worse, so those keep the vector copy.
   static constexpr bool kLoneRowCopy = K_ != Eigen::Dynamic && K_ <= 8 && (K_ & (K_ - 1)) != 0;
+  static constexpr Eigen::Index kLoneRowCopyUpTo = 8;
   static constexpr Eigen::Index kRowBlock = 4;
   // addRows: from this many columns (K + 1) on, a block is folded row-major in panels
   // (foldRowsHouseholder). Measured with 64-row blocks, double, against the column-major form:
