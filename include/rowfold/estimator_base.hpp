@@ -999,14 +999,17 @@ class EstimatorBase {
   template <typename XD>
   EIGEN_ALWAYS_INLINE Scalar foldStep(const Eigen::MatrixBase<XD>& x, Scalar y, Scalar w, Scalar lam,
                   const typename Centering<Scalar, K, MaxK>::Step& step) {
-    m_step = lam;
     if constexpr (detail::CenteringFirst<Derived>::value && detail::viewSize<K, XD> != Eigen::Dynamic) {
       // The step commits while d is still in registers: after the estimator's stores a
       // compiler must read m_row back (they might alias it), and that read sat on the
-      // loop-carried chain of the means.
+      // loop-carried chain of the means. With a runtime K (m_row on the heap) a store of
+      // m_step before the commit forced the same read, so it comes after (timing program,
+      // native, NormalEquations runtime K = 2, float: 9.4-9.5 -> 9.1 ns per sample).
       m_centering.template commitStep<detail::viewSize<K, XD>>(step, lam, m_fit.intercept, m_row);
+      m_step = lam;
       derived().foldRow(x, y, w, m_row, step.delta);
     } else {
+      m_step = lam;
       derived().foldRow(x, y, w, m_row, step.delta);
       m_centering.template commitStep<detail::viewSize<K, XD>>(step, lam, m_fit.intercept, m_row);
     }
