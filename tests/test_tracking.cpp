@@ -368,6 +368,19 @@ struct TypeAt {
   using Type = E;
   static constexpr int k = Kr;
 };
+
+// Bit for bit on x86-64. aarch64 g++ fuses multiply-adds as its inlining allows: one build of
+// the test below had NormalEquations' K = 3 paths (lambda = 1) apart in the last bits, the
+// next build (one line added) identical (qemu-aarch64, 2026-12-05). There, within `ulps` eps.
+template <typename S>
+bool sameBits(S u, S v, S ulps) {
+#if defined(__x86_64__)
+  static_cast<void>(ulps);
+  return u == v;
+#else
+  return std::abs(u - v) <= ulps * std::numeric_limits<S>::epsilon() * std::max(std::abs(u), std::abs(v));
+#endif
+}
 }  // namespace
 
 // With a runtime K, the length of the loops on the per-sample path comes from x's type: a
@@ -416,28 +429,52 @@ TEST_CASE_TEMPLATE("a runtime K folds the same bits from x of fixed and of runti
     REQUIRE(a.status == Status::ok);
     REQUIRE(b.status == Status::ok);
     REQUIRE(c.status == Status::ok);
-    // Bit for bit on x86-64. aarch64 g++ fuses multiply-adds as its inlining allows: one
-    // build of this test had NormalEquations' K = 3 paths (lambda = 1) apart in the last
-    // bits, the next build (one line added here) identical (qemu-aarch64, 2026-12-05). There,
-    // within 64 eps for the coefficients, which still catches a term off by 1e-4, and 4096 eps
-    // for the residual standard error: NormalEquations forms SSE = Syy - z'z, and on this
-    // stream (noise 0.1 against a spread of y about 1.7) the cancellation magnifies a rounding
-    // of the co-moments some 300 times.
-    const auto same = [](S u, S v, S ulps) {
-#if defined(__x86_64__)
-      static_cast<void>(ulps);
-      return u == v;
-#else
-      return std::abs(u - v) <= ulps * std::numeric_limits<S>::epsilon() * std::max(std::abs(u), std::abs(v));
-#endif
-    };
-    for (int j = 0; j < k; ++j) CHECK(same(a.coefficients(j), b.coefficients(j), S(64)));
-    for (int j = 0; j < k; ++j) CHECK(same(a.coefficients(j), c.coefficients(j), S(64)));
-    CHECK(same(a.intercept, b.intercept, S(64)));
-    CHECK(same(a.intercept, c.intercept, S(64)));
-    CHECK(same(sized.summarize().residualStandardError, runtime.summarize().residualStandardError, S(4096)));
-    CHECK(same(sized.summarize().residualStandardError, strided.summarize().residualStandardError, S(4096)));
+    // Within 64 eps for the coefficients on aarch64 (see sameBits), which still catches a term
+    // off by 1e-4, and 4096 eps for the residual standard error: NormalEquations forms
+    // SSE = Syy - z'z, and on this stream (noise 0.1 against a spread of y about 1.7) the
+    // cancellation magnifies a rounding of the co-moments some 300 times.
+    for (int j = 0; j < k; ++j) CHECK(sameBits(a.coefficients(j), b.coefficients(j), S(64)));
+    for (int j = 0; j < k; ++j) CHECK(sameBits(a.coefficients(j), c.coefficients(j), S(64)));
+    CHECK(sameBits(a.intercept, b.intercept, S(64)));
+    CHECK(sameBits(a.intercept, c.intercept, S(64)));
+    CHECK(sameBits(sized.summarize().residualStandardError, runtime.summarize().residualStandardError, S(4096)));
+    CHECK(sameBits(sized.summarize().residualStandardError, strided.summarize().residualStandardError, S(4096)));
   }
+}
+
+// NormalEquations' copies of add for a runtime K fold in scalars (rank1Scalars) up to K = 15
+// (float) or 16, where the fixed-K estimator folds with vector loops (rank1Unrolled): the same
+// products and sums, so the same bits (x86-64; aarch64: see sameBits). K = 8 and 12 take the
+// scalar form in the copy, float K = 16 the loops in both.
+TEST_CASE_TEMPLATE("a runtime K's copy folds the bits of the fixed-K estimator", P,
+                   TypeAt<rowfold::NormalEquations<float, 8>, 8>,
+                   TypeAt<rowfold::NormalEquations<double, 12>, 12>,
+                   TypeAt<rowfold::NormalEquations<float, 16>, 16>) {
+  using E = typename P::Type;
+  using S = typename E::Scalar;
+  using R = rowfold::NormalEquations<S, Eigen::Dynamic>;
+  constexpr int k = P::k;
+  E fixed(k, typename E::Options());
+  R runtime(k, typename R::Options());
+  std::mt19937_64 rng(5);
+  std::normal_distribution<double> n01(0, 1);
+  for (int i = 0; i < 1000; ++i) {
+    Eigen::Matrix<S, Eigen::Dynamic, 1> x(k);
+    for (int j = 0; j < k; ++j) x(j) = S(j + n01(rng));
+    const S y = x.sum() + S(0.1 * n01(rng));
+    REQUIRE(fixed.add(x, y) == Status::ok);
+    REQUIRE(runtime.add(x, y) == Status::ok);
+  }
+  const auto a = fixed.solve();
+  const auto b = runtime.solve();
+  REQUIRE(a.status == Status::ok);
+  REQUIRE(b.status == Status::ok);
+  // The means and the coefficients; not the intercept ybar - xbar'b, whose dot product sums in
+  // another order for a fixed and a runtime length (a query, not the fold: it differed here).
+  for (int j = 0; j < k; ++j) CHECK(sameBits(fixed.centering().xMean()(j), runtime.centering().xMean()(j), S(64)));
+  CHECK(sameBits(fixed.centering().yMean(), runtime.centering().yMean(), S(64)));
+  for (int j = 0; j < k; ++j) CHECK(sameBits(a.coefficients(j), b.coefficients(j), S(64)));
+  CHECK(sameBits(fixed.summarize().residualStandardError, runtime.summarize().residualStandardError, S(4096)));
 }
 
 // Two checks on one stream at lambda = 0.97 (2000 samples), with the windup guard on (the

@@ -121,43 +121,77 @@ class NormalEquations : public EstimatorBase<NormalEquations<Scalar_, K_, MaxK_>
   // Fixed K <= 4: always inlined into add(). There the call costs as much as the update (the
   // state's vector registers spilled around it): native bench, double, K = 4 11.5-11.9 ->
   // 7.7-8.3 ns per sample (bench/README, store-order round), where g++ had declined to inline
-  // it in a large translation unit. At K = 8 the forced inline measured 10-15 % slower; larger K
-  // and runtime K are left to the compiler. Not on Cortex-M: no vector registers to spill there,
-  // and each inlined copy is code (M4F, K = 4: +456 B of text). KV: the length of the loops,
-  // K or, with a runtime K, that of x (a fixed-size block from add's per-size copies).
-  static constexpr int kSmallK = 4;  // up to this K: the fold inlined, and a copy's u in a local (below)
+  // it in a large translation unit. A fixed K above 4: kept out of line. Inline it measured
+  // 10-15 % slower at K = 8, and g++ did inline it into the update bench's loop after an
+  // unrelated change (double K = 8 / 32: 16.2-17.0 / 69-70 -> 19.0-19.1 / 80-81 ns per
+  // sample). A runtime K is left to the compiler. Neither on Cortex-M: no vector registers to
+  // spill there, and each inlined copy is code (M4F, K = 4: +456 B of text). KV: the length of
+  // the loops, K or, with a runtime K, that of x (a fixed-size block from add's per-size copies).
+  static constexpr int kSmallK = 4;  // up to this K: the fold inlined
+  static constexpr int kScalarFoldUpTo = sizeof(Scalar_) < sizeof(double) ? 15 : 16;  // see foldCentered
   template <int KV>
   static constexpr bool kInlineFold = KV != Eigen::Dynamic && KV <= kSmallK && !detail::kMicrocontroller;
-  template <typename XD, bool I = kInlineFold<detail::viewSize<K_, XD>>, std::enable_if_t<I, int> = 0>
+  template <int KV>
+  static constexpr bool kApartFold = K_ != Eigen::Dynamic && KV > kSmallK && !detail::kMicrocontroller;
+  template <typename XD, int KV = detail::viewSize<K_, XD>, std::enable_if_t<kInlineFold<KV>, int> = 0>
   EIGEN_ALWAYS_INLINE void foldRow(const Eigen::MatrixBase<XD>&, Scalar, Scalar, const Vector1& d, Scalar delta) {
-    foldCentered<detail::viewSize<K_, XD>>(d, delta);
+    foldCentered<KV>(d, delta);
   }
-  template <typename XD, bool I = kInlineFold<detail::viewSize<K_, XD>>, std::enable_if_t<!I, int> = 0>
+  template <typename XD, int KV = detail::viewSize<K_, XD>, std::enable_if_t<kApartFold<KV>, int> = 0>
+  EIGEN_DONT_INLINE void foldRow(const Eigen::MatrixBase<XD>&, Scalar, Scalar, const Vector1& d, Scalar delta) {
+    foldCentered<KV>(d, delta);
+  }
+  template <typename XD, int KV = detail::viewSize<K_, XD>, std::enable_if_t<!kInlineFold<KV> && !kApartFold<KV>, int> = 0>
   void foldRow(const Eigen::MatrixBase<XD>&, Scalar, Scalar, const Vector1& d, Scalar delta) {
-    foldCentered<detail::viewSize<K_, XD>>(d, delta);
+    foldCentered<KV>(d, delta);
   }
 
   /// G <- lambda G + delta d d' (lower triangle), loops of length KV + 1.
   template <int KV>
   EIGEN_ALWAYS_INLINE void foldCentered(const Vector1& d, Scalar delta) {
-    constexpr int N = detail::plusOne(KV);
-    const Scalar lambda = this->lambda();
-    const Eigen::Index n = m_gram.cols();
     // u = sqrt(delta) d, G += u u': the rounding of the symmetric square-root form, which keeps
     // about a digit more than delta d_i d_j on exact-fit data (NIST Wampler1: 7.8 vs 6.5).
-    // A runtime K's copy for KV <= 4, and a fixed K = 3: u in scalars, never in memory
-    // (rank1Scalars). In the copy the member m_u lives on the heap, and the fold read back
-    // what had just been stored. With a fixed K = 3, d's first three entries (one vector and
-    // a scalar) and its last were stored apart and read back as one vector of four (timing
-    // program, native: double 11.4-11.6 -> 7.0-7.2 ns per sample, float 10.3-10.6 -> 6.9;
-    // K = 2 and 4, whose stores match the loads, unchanged). At K = 8 a local u measured
-    // slower (double 22.6-23.1 -> 34.6-35.2 ns per sample).
-    if constexpr (KV != Eigen::Dynamic && KV <= kSmallK && (K_ == Eigen::Dynamic || KV == 3)) {
-      if (lambda == Scalar(1)) {
-        rank1Scalars<N>(d.data(), std::sqrt(delta), std::make_integer_sequence<int, N>{});
+    // A runtime K's copies up to kScalarFoldUpTo, and a fixed K = 3: u in scalars, never in
+    // memory (rank1Scalars). In a copy the member m_u lives on the heap: the fold stored u
+    // there in pieces and read it back in windows u[j..] that span two of them, which store
+    // forwarding cannot serve (perf annotate, runtime K = 8, float: 40 % of the copy's
+    // samples on the first such load). With a fixed K = 3, d's first three entries (one
+    // vector and a scalar) and its last were stored apart and read back as one vector of four.
+    // Timing program, native, ns per sample: fixed K = 3, double 11.4-11.6 -> 7.0-7.2, float
+    // 10.3-10.6 -> 6.9; runtime K = 6 / 8 / 10 / 12 / 15, float 15.2-15.7 / 16.7-17.3 /
+    // 22.0-23.1 / 23.0-23.2 / 45.2-45.7 -> 11.9-12.1 / 14.6-14.8 / 19.6-19.9 / 19.6-19.8 /
+    // 28.5-29.0, double 16.0-16.2 / 20.6-21.3 / 24.4-24.6 / 31.5-31.8 / 44.3-45.0 -> 13.3-14.2
+    // / 19.5-20.8 / 19.1-19.6 / 22.4-22.5 / 29.9-30.8; K = 16 double 43.1-43.5 -> 38.0-38.5,
+    // float 31.5-31.6 -> 38.4-38.7 (its windows line up with the vectors: not for float).
+    if constexpr (KV != Eigen::Dynamic && (K_ == Eigen::Dynamic ? KV <= kScalarFoldUpTo : KV == 3)) {
+      if (this->lambda() == Scalar(1)) {
+        rank1Scalars<detail::plusOne(KV)>(d.data(), std::sqrt(delta), std::make_integer_sequence<int, detail::plusOne(KV)>{});
+        return;
+      }
+      // In a runtime K's copy, forgetting's runtime-length loops (below) out of line: inline,
+      // their vector registers gave the whole copy a realigned stack frame, pushed and popped
+      // on every sample (timing program, native, runtime K = 2 / 3 / 4, lambda = 1, float
+      // 9.1 / 10.4 / 10.1 -> 8.6-8.8 / 9.8 / 9.5 ns per sample, double K = 2 9.2-9.3 ->
+      // 8.0-8.3, K = 4 unchanged). Forgetting pays a call
+      // (lambda = 0.999, guard off: about +1 ns of 12-18; with the guard on, the default
+      // under forgetting, add() takes the runtime-length path and this copy is not reached).
+      if constexpr (K_ == Eigen::Dynamic) {
+        foldForgettingApart<KV>(d, delta);
         return;
       }
     }
+    foldGeneral<KV>(d, delta);
+  }
+  template <int KV>
+  EIGEN_DONT_INLINE void foldForgettingApart(const Vector1& d, Scalar delta) {
+    foldGeneral<KV>(d, delta);
+  }
+  /// foldCentered without the scalar form.
+  template <int KV>
+  EIGEN_ALWAYS_INLINE void foldGeneral(const Vector1& d, Scalar delta) {
+    constexpr int N = detail::plusOne(KV);
+    const Scalar lambda = this->lambda();
+    const Eigen::Index n = m_gram.cols();
     detail::sizedAs<N>(m_u) = std::sqrt(delta) * detail::sizedAs<N>(d);
     if constexpr (N != Eigen::Dynamic) {
       if (lambda == Scalar(1)) {
@@ -211,8 +245,8 @@ class NormalEquations : public EstimatorBase<NormalEquations<Scalar_, K_, MaxK_>
     for (int i = J; i < N; ++i) gj[i] += a * v[i];
   }
 
-  // The same update with u = r d in scalars, for a runtime K's copy with N <= kSmallK + 1 and
-  // a fixed K = 3 (foldCentered): each d_i read with a load of its own, every product written
+  // The same update with u = r d in scalars, for a runtime K's copies up to kScalarFoldUpTo
+  // and a fixed K = 3 (foldCentered): each d_i read with a load of its own, every product written
   // out, no loop and no pointer to u. d was stored in two parts (its first N - 1 entries,
   // then the last), and g++ read it, or a local u it had stored entry by entry, with wider
   // loads that those stores could not forward to (perf annotate, runtime K = 2, float: a
