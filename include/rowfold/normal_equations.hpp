@@ -172,9 +172,9 @@ class NormalEquations : public EstimatorBase<NormalEquations<Scalar_, K_, MaxK_>
       // their vector registers gave the whole copy a realigned stack frame, pushed and popped
       // on every sample (timing program, native, runtime K = 2 / 3 / 4, lambda = 1, float
       // 9.1 / 10.4 / 10.1 -> 8.6-8.8 / 9.8 / 9.5 ns per sample, double K = 2 9.2-9.3 ->
-      // 8.0-8.3, K = 4 unchanged). Forgetting pays a call
-      // (lambda = 0.999, guard off: about +1 ns of 12-18; with the guard on, the default
-      // under forgetting, add() takes the runtime-length path and this copy is not reached).
+      // 8.0-8.3, K = 4 unchanged). Forgetting pays a call (lambda = 0.999, guard off: about
+      // +1 ns of 12-18); with the guard on, the default under forgetting, add() takes the
+      // runtime-length path and does not reach this copy.
       if constexpr (K_ == Eigen::Dynamic) {
         foldForgettingApart<KV>(d, delta);
         return;
