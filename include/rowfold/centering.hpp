@@ -126,12 +126,11 @@ class Centering {
   template <int KV = K>
   void commitStep(const Step& st, Scalar lambda, Intercept mode, const Vector1& row) {
     const Eigen::Index k = m_xbar.size();
-    const Scalar dy = row(k);  // read before the stores below, which a compiler must assume alias it
     if (mode == Intercept::fit) {
       detail::sizedAs<KV>(m_xbar) += st.share * detail::headOf<KV>(row, k);
-      m_ybar += st.share * dy;
+      m_ybar += st.share * row(k);
     }
-    m_syy = lambda * m_syy + st.delta * dy * dy;
+    m_syy = lambda * m_syy + st.delta * row(k) * row(k);
     m_weight = st.wNew;
     m_forget = lambda * m_forget + Scalar(1);
     m_forget2 = lambda * lambda * m_forget2 + Scalar(1);
